@@ -1,0 +1,128 @@
+"""Human and JSON output of the command line: aligned tables with units, clean JSON."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import math
+from collections.abc import Iterable, Sequence
+
+import numpy as np
+
+__all__ = ["num", "table", "kv_table", "to_jsonable", "dumps"]
+
+
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+
+
+def num(value, digits: int = 4) -> str:
+    """A number with ``digits`` significant digits; whole numbers without decimals;
+    inf and NaN spelled out."""
+    if value is None:
+        return "-"
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "no"
+    if not _is_number(value):
+        return str(value)
+    v = float(value)
+    if math.isnan(v):
+        return "n/a"
+    if math.isinf(v):
+        return "never" if v > 0 else "-inf"
+    if v == int(v) and abs(v) < 1e12:
+        return f"{int(v):,}" if abs(v) >= 10000 else str(int(v))
+    if abs(v) >= 1e7 or abs(v) < 1e-4:
+        return f"{v:.{digits - 1}e}"
+    return f"{v:,.{_decimals(abs(v), digits)}f}"
+
+
+def _decimals(magnitude: float, digits: int) -> int:
+    if magnitude == 0:
+        return 0
+    return int(min(max(digits - 1 - math.floor(math.log10(magnitude)), 0), 8))
+
+
+def _column_format(values: list, digits: int) -> list[str]:
+    """Numbers of one column with a common number of decimals."""
+    nums = [float(v) for v in values if _is_number(v) and math.isfinite(float(v))]
+    if not nums or all(v == int(v) for v in nums):
+        return [num(v, digits) for v in values]
+    dec = _decimals(max(abs(v) for v in nums), digits)
+    out = []
+    for v in values:
+        if not _is_number(v) or not math.isfinite(float(v)):
+            out.append(num(v, digits))
+            continue
+        text = f"{float(v):,.{dec}f}"
+        if float(v) != 0 and float(text.replace(",", "")) == 0:
+            text = f"{float(v):.{digits - 1}e}"
+        out.append(text)
+    return out
+
+
+def table(rows: Iterable[Sequence], headers: Sequence[str], *, digits: int = 4,
+          title: str | None = None) -> str:
+    """An aligned text table; text left-aligned, numbers right-aligned with the
+    same number of decimals down a column."""
+    rows = [list(r) for r in rows]
+    ncol = len(headers)
+    cols = [[r[j] for r in rows] for j in range(ncol)]
+    numeric = [bool(c) and all(_is_number(v) or v is None for v in c) for c in cols]
+    text_cols = [_column_format(c, digits) if numeric[j] else
+                 [v if isinstance(v, str) else num(v, digits) for v in c]
+                 for j, c in enumerate(cols)]
+    body = [[text_cols[j][i] for j in range(ncol)] for i in range(len(rows))]
+    widths = [max([len(h)] + [len(r[j]) for r in body]) for j, h in enumerate(headers)]
+
+    def fmt(cells):
+        return "  ".join(c.rjust(w) if numeric[j] else c.ljust(w)
+                         for j, (c, w) in enumerate(zip(cells, widths))).rstrip()
+
+    out = [title] if title else []
+    out.append(fmt(list(headers)))
+    out.append("  ".join("-" * w for w in widths))
+    out.extend(fmt(r) for r in body)
+    return "\n".join(out)
+
+
+def kv_table(items: Iterable[tuple[str, object, str]], *, digits: int = 4,
+             title: str | None = None) -> str:
+    """A quantity / value / unit table."""
+    rows = [(name, value if isinstance(value, str) else num(value, digits), unit)
+            for name, value, unit in items]
+    body = [[n, v, u] for n, v, u in rows]
+    w0 = max([len("quantity")] + [len(r[0]) for r in body])
+    w1 = max([len("value")] + [len(r[1]) for r in body])
+    out = [title] if title else []
+    out.append(f"{'quantity'.ljust(w0)}  {'value'.rjust(w1)}  unit")
+    out.append(f"{'-' * w0}  {'-' * w1}  ----")
+    out.extend(f"{n.ljust(w0)}  {v.rjust(w1)}  {u}".rstrip() for n, v, u in body)
+    return "\n".join(out)
+
+
+def to_jsonable(obj):
+    """Plain JSON types: numpy scalars and arrays unpacked, inf and NaN as null."""
+    if isinstance(obj, dict):
+        return {str(k): to_jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [to_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    if isinstance(obj, (_dt.date, _dt.datetime)):
+        return obj.isoformat()
+    if hasattr(obj, "__fspath__"):
+        return str(obj)
+    return obj
+
+
+def dumps(obj) -> str:
+    """One JSON object, valid for strict parsers (no NaN or Infinity)."""
+    return json.dumps(to_jsonable(obj), indent=2, allow_nan=False, ensure_ascii=False)
