@@ -14,44 +14,23 @@ from planner.errors import DemographyError
 __all__ = ["register", "lifetable_report", "harvest_report"]
 
 
-def _fraction(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-    if not (0 < value <= 1):
-        raise argparse.ArgumentTypeError(f"must lie in (0, 1], got {text}")
-    return value
+def _checked(convert, ok, rule: str):
+    """An argparse type: convert the text, then check it against ``ok``."""
+    def parse(text: str):
+        try:
+            value = convert(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}") from None
+        if not ok(value):
+            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}")
+        return value
+    return parse
 
 
-def _positive(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-    if not (value > 0 and math.isfinite(value)):
-        raise argparse.ArgumentTypeError(f"must be a positive number, got {text}")
-    return value
-
-
-def _count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"cannot be negative, got {text}")
-    return value
-
-
-def _age(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not an age: {text!r}") from None
-    if not math.isfinite(value) or value < 0:
-        raise argparse.ArgumentTypeError(f"ages are non-negative numbers, got {text}")
-    return value
+_fraction = _checked(float, lambda v: 0 < v <= 1, "a fraction in (0, 1]")
+_positive = _checked(float, lambda v: 0 < v < math.inf, "a positive number")
+_count = _checked(int, lambda v: v >= 0, "a whole number >= 0")
+_age = _checked(float, lambda v: 0 <= v < math.inf, "an age (a number >= 0)")
 
 
 def register(sub) -> None:
