@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from planner.errors import InputError, InputErrors
+from planner.fileio import read_text
 
 __all__ = ["CsvTable", "read_csv_table", "parse_number", "closest"]
 
@@ -89,15 +90,7 @@ def read_csv_table(path: str | Path, *, required: list[str] | None = None,
     path = Path(path)
     source = path.name
     if text is None:
-        try:
-            text = path.read_text(encoding="utf-8-sig")
-        except FileNotFoundError:
-            raise InputError("file not found", source=str(path)) from None
-        except IsADirectoryError:
-            raise InputError("this is a folder, not a CSV file", source=str(path)) from None
-        except UnicodeDecodeError:
-            raise InputError("the file is not UTF-8 text (is it a spreadsheet? save it as CSV)",
-                             source=source) from None
+        text = read_text(path, "CSV", "is it a spreadsheet? save it as CSV")
     comments: list[str] = []
     header: list[str] | None = None
     header_line = 0

@@ -31,8 +31,15 @@ def num(value, digits: int = 4) -> str:
     if math.isinf(v):
         return "never" if v > 0 else "-inf"
     if v == int(v) and abs(v) < 1e12:
-        return f"{int(v):,}" if abs(v) >= 10000 else str(int(v))
-    if abs(v) >= 1e7 or abs(v) < 1e-4:
+        return f"{int(v):,}"
+    return _sig(v, digits)
+
+
+def _sig(v: float, digits: int) -> str:
+    """``digits`` significant digits, trailing zeros kept; scientific when tiny or huge."""
+    if v == 0:
+        return "0"
+    if abs(v) >= 1e9 or abs(v) < 1e-4:
         return f"{v:.{digits - 1}e}"
     return f"{v:,.{_decimals(abs(v), digits)}f}"
 
@@ -48,6 +55,11 @@ def _column_format(values: list, digits: int) -> list[str]:
     nums = [float(v) for v in values if _is_number(v) and math.isfinite(float(v))]
     if not nums or all(v == int(v) for v in nums):
         return [num(v, digits) for v in values]
+    mags = [abs(v) for v in nums if v != 0]
+    if mags and max(mags) / min(mags) >= 10:
+        # mixed scales: significant digits per cell
+        return [_sig(float(v), digits) if _is_number(v) and math.isfinite(float(v))
+                else num(v, digits) for v in values]
     dec = _decimals(max(abs(v) for v in nums), digits)
     out = []
     for v in values:

@@ -34,7 +34,7 @@ class _UsageError(Exception):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from planner.cli import demo_cmd, demography_cmds
+    from planner.cli import demo_cmd, demography_cmds, scenario_cmds
 
     parser = _Parser(
         prog="broodline",
@@ -45,6 +45,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
     demography_cmds.register(sub)
+    scenario_cmds.register(sub)
     demo_cmd.register(sub)
     return parser
 

@@ -84,7 +84,7 @@ def test_cohort_json_has_intervals(tmp_path, capsys):
 def test_demo_runs(capsys):
     code, out, err = run(["demo"], capsys)
     assert code == 0, err
-    assert "invented" in out and "harvest fraction H" in out
+    assert "invented" in out and "Harvest at the allowed ages" in out
 
 
 BAD_TABLES = {

@@ -1,0 +1,566 @@
+"""The scenario schema: what a user hands Broodline, validated into one pydantic model.
+
+Two kinds of file feed it (see :mod:`planner.scenario.load` and
+:mod:`planner.scenario.workbook`):
+
+- a **colony model** (``models/*.toml``, one per strain): life table, stage ages, female
+  fraction, how the strain is reared, the allowed harvest and discard ages, product yield;
+- a **scenario**: facility (rooms, diet kitchen), crews and labour standards, costs,
+  calendar, orders, start state, expansion options and plan settings.
+
+Every quantity states its unit in brackets in its field description; a bare number is
+taken in that unit and a text such as ``"30 min"`` is converted (:mod:`.units`).
+Ages are whole days from egg laying (``x = 0``).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from functools import partial
+from typing import Annotated, Literal
+
+import numpy as np
+from pydantic import (BaseModel, BeforeValidator, ConfigDict, Field, field_validator,
+                      model_validator)
+
+from planner.scenario.units import parse_quantity
+
+__all__ = [
+    "WEEKDAYS", "TASKS", "Weekly", "InlineLifeTable", "Stages", "Rearing", "ColonyModel",
+    "AdultRoom", "LarvalRoom", "Facility", "Kitchen", "Crew", "LabourStandards", "Costs",
+    "Calendar", "Order", "StartCages", "StartTrays", "StartState", "ExpansionOption",
+    "PlanSettings", "Scenario", "Q",
+]
+
+WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")
+_DAY_NAMES = {d: d for d in WEEKDAYS} | {
+    "monday": "mon", "tuesday": "tue", "wednesday": "wed", "thursday": "thu",
+    "friday": "fri", "saturday": "sat", "sunday": "sun", "tues": "tue", "thur": "thu",
+    "thurs": "thu"}
+
+#: Tasks of the crews, each with the unit its labour standard is counted in.
+TASKS: dict[str, str] = {
+    "diet_mixing": "h per kg of diet mixed",
+    "egg_collection": "h per laying cage per day",
+    "seeding": "h per tray seeded",
+    "larval_collection": "h per tray collected",
+    "harvest_packing": "h per million pupae harvested for release",
+    "cage_loading": "h per cage loaded",
+    "cage_care": "h per occupied cage per day",
+    "cage_discard": "h per cage discarded",
+}
+
+
+def Q(unit: str, description: str, **constraints):
+    """A float field with a unit: described as ``'<description> [<unit>]'``."""
+    return Annotated[float, BeforeValidator(partial(parse_quantity, unit=unit)),
+                     Field(description=f"{description} [{unit}]",
+                           json_schema_extra={"unit": unit}, **constraints)]
+
+
+def N(unit: str, description: str, **constraints):
+    """An integer field with a unit."""
+    return Annotated[int, BeforeValidator(partial(parse_quantity, unit=unit)),
+                     Field(description=f"{description} [{unit}]",
+                           json_schema_extra={"unit": unit}, **constraints)]
+
+
+class _Model(BaseModel):
+    model_config = ConfigDict(extra="forbid", validate_assignment=False,
+                              populate_by_name=True, str_strip_whitespace=True)
+
+
+def weekday_key(name: str) -> str:
+    """Normalise a weekday name ('Mon', 'monday', 'MON') to 'mon'."""
+    key = _DAY_NAMES.get(str(name).strip().lower())
+    if key is None:
+        raise ValueError(f"{name!r} is not a weekday (use Mon, Tue, Wed, Thu, Fri, Sat, Sun)")
+    return key
+
+
+def _weekday_dict(value):
+    if isinstance(value, dict):
+        return {weekday_key(k): v for k, v in value.items()}
+    return value
+
+
+class Weekly(_Model):
+    """One value per weekday (all seven must be given; write 0 for a closed day)."""
+
+    mon: float = Field(ge=0)
+    tue: float = Field(ge=0)
+    wed: float = Field(ge=0)
+    thu: float = Field(ge=0)
+    fri: float = Field(ge=0)
+    sat: float = Field(ge=0)
+    sun: float = Field(ge=0)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _keys(cls, value):
+        return _weekday_dict(value)
+
+    def as_list(self) -> list[float]:
+        """Values Monday to Sunday."""
+        return [getattr(self, d) for d in WEEKDAYS]
+
+    @classmethod
+    def every_day(cls, value: float) -> "Weekly":
+        return cls(**{d: value for d in WEEKDAYS})
+
+
+def _weekly_or_number(value):
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return {d: value for d in WEEKDAYS}
+    return value
+
+
+WeeklyOrNumber = Annotated[Weekly, BeforeValidator(_weekly_or_number)]
+
+
+# -- colony model ----------------------------------------------------------------------
+
+class InlineLifeTable(_Model):
+    """A daily life table given inline: ages 0, 1, 2, ... [day]."""
+
+    age: list[float] = Field(description="ages [day], 0, 1, 2, ...")
+    lx: list[float] = Field(description="survival from egg laying to each age [-]")
+    mx: list[float] = Field(description="eggs per living female per day at each age "
+                                        "[eggs/female/day] (see mx_counts)")
+
+    @model_validator(mode="after")
+    def _check(self):
+        from planner.demography.lifetable import validate_life_table
+        from planner.errors import InputError
+        try:
+            validate_life_table(self.age, self.lx, self.mx, source="life_table")
+        except InputError as exc:
+            raise ValueError(str(exc)) from None
+        if not np.allclose(self.age, np.arange(len(self.age))):
+            raise ValueError("the planner needs a daily life table with ages 0, 1, 2, ... "
+                             "[day] and no gaps")
+        return self
+
+
+class Stages(_Model):
+    """Stage ages of the strain, counted from egg laying."""
+
+    hatch_age: N("day", "age at which eggs hatch", ge=0)
+    larval_collection_age: N("day", "age at which mature larvae leave the diet and trays "
+                                    "leave the racks", gt=0)
+    emergence_age: N("day", "age at which adults emerge", gt=0)
+
+    @model_validator(mode="after")
+    def _order(self):
+        if not (self.hatch_age < self.larval_collection_age < self.emergence_age):
+            raise ValueError(f"stage ages must increase: hatch ({self.hatch_age}) < larval "
+                             f"collection ({self.larval_collection_age}) < emergence "
+                             f"({self.emergence_age}) [day]")
+        return self
+
+
+class Rearing(_Model):
+    """How the strain is reared, and the choices the facility allows."""
+
+    pupae_per_cage: N("pupae", "pupae loaded into one oviposition cage", gt=0)
+    cage_loading_age: N("day", "pupal age at which cages are loaded", gt=0)
+    eggs_per_tray: Q("eggs", "eggs seeded on one larval tray, counted at collection "
+                             "(losses until seeding are in lx)", gt=0)
+    diet_per_tray: Q("kg", "larval diet per tray", gt=0)
+    seed_lag: N("day", "days from egg collection to seeding", ge=0)
+    eggs_per_ml: Q("eggs/ml", "eggs per millilitre, to measure eggs by volume on the task "
+                              "sheets", gt=0) | None = None
+    harvest_ages: list[int] = Field(min_length=1, description="pupal ages at which pupae may "
+                                                              "be harvested for release [day]")
+    discard_ages: list[int] = Field(min_length=1, description="ages at whose end cages may be "
+                                                              "emptied [day]")
+    product_yield: Q("-", "share of harvested pupae that counts toward an order (e.g. the male "
+                          "share for a male-only product, times the emergence after handling)",
+                     gt=0, le=1)
+
+    @field_validator("harvest_ages", "discard_ages")
+    @classmethod
+    def _sorted_unique(cls, v: list[int]) -> list[int]:
+        if len(set(v)) != len(v):
+            raise ValueError("an age is listed twice")
+        return sorted(v)
+
+
+class ColonyModel(_Model):
+    """A colony model: one strain, its life table and how it is reared."""
+
+    name: str = Field(min_length=1, description="name of the strain or line")
+    species: str = Field("", description="what insect it is")
+    notes: str = Field("", description="free notes: sources, ranges, caveats")
+    age_unit: Literal["day"] = Field("day", description="unit of age; the planner works in days")
+    life_table: InlineLifeTable = Field(description="the daily life table (in a file: the name "
+                                                    "of a CSV with columns age,lx,mx beside the "
+                                                    "model file)")
+    mx_counts: Literal["all eggs", "female eggs"] = Field(
+        "all eggs", description="whether the mx column counts all eggs or female eggs only")
+    female_fraction: Q("-", "share of eggs and adults that are female", gt=0, le=1)
+    stages: Stages
+    rearing: Rearing
+
+    @model_validator(mode="after")
+    def _ages_fit(self):
+        st, re_ = self.stages, self.rearing
+        last = len(self.life_table.age) - 1
+        errs = []
+        if not (st.larval_collection_age <= re_.cage_loading_age <= st.emergence_age):
+            errs.append(f"rearing.cage_loading_age = {re_.cage_loading_age}: cages are loaded "
+                        f"with pupae, between larval collection ({st.larval_collection_age}) "
+                        f"and emergence ({st.emergence_age}) [day]")
+        if re_.seed_lag >= st.larval_collection_age:
+            errs.append(f"rearing.seed_lag = {re_.seed_lag}: eggs must be seeded before the "
+                        f"larval collection age ({st.larval_collection_age}) [day]")
+        for a in re_.harvest_ages:
+            if a <= st.larval_collection_age:
+                errs.append(f"rearing.harvest_ages: {a} is not after larval collection "
+                            f"({st.larval_collection_age} day): there are no pupae yet")
+            if a > min(re_.discard_ages):
+                errs.append(f"rearing.harvest_ages: harvest age {a} is after the discard age "
+                            f"{min(re_.discard_ages)} [day]: harvest before cages are emptied")
+        for a in re_.discard_ages:
+            if a <= re_.cage_loading_age:
+                errs.append(f"rearing.discard_ages: {a} is not after the cage loading age "
+                            f"({re_.cage_loading_age} day)")
+        for name, ages in (("harvest_ages", re_.harvest_ages), ("discard_ages", re_.discard_ages)):
+            for a in ages:
+                if a > last:
+                    errs.append(f"rearing.{name}: age {a} is beyond the life table, which ends "
+                                f"at day {last}")
+        if st.emergence_age > last:
+            errs.append(f"stages.emergence_age = {st.emergence_age} is beyond the life table "
+                        f"(last age {last})")
+        if errs:
+            raise ValueError("\n".join(errs))
+        return self
+
+    # -- derived, in the planner's units ----------------------------------------------
+    def lx(self) -> np.ndarray:
+        """Survival from egg laying by day of age [-] (l0 = 1)."""
+        lx = np.asarray(self.life_table.lx, float)
+        return lx / lx[0]
+
+    def female_mx(self) -> np.ndarray:
+        """Female eggs per female per day by age [female eggs/female/day]."""
+        mx = np.asarray(self.life_table.mx, float)
+        return mx * self.female_fraction if self.mx_counts == "all eggs" else mx
+
+    def eggs_per_pupa(self) -> np.ndarray:
+        """Eggs (both sexes) laid per day by one insect of age x in a cage, per insect
+        alive at that age: ``phi * mx_all`` = female mx [eggs/insect/day]."""
+        return self.female_mx()
+
+    def to_life_table(self):
+        """The colony's :class:`planner.demography.LifeTable` (female mx)."""
+        from planner.demography import LifeTable
+        return LifeTable(self.life_table.age, self.lx(), self.female_mx(), age_unit="day",
+                         source=self.name)
+
+
+# -- facility -----------------------------------------------------------------------
+
+class AdultRoom(_Model):
+    """An adult room holding oviposition cages."""
+
+    name: str = Field(min_length=1)
+    cage_slots: N("cage slots", "oviposition cages the room can hold", ge=0)
+
+
+class LarvalRoom(_Model):
+    """A larval room with racks for larval trays."""
+
+    name: str = Field(min_length=1)
+    rack_slots: N("tray slots", "larval trays the racks can hold", ge=0)
+
+
+class Facility(_Model):
+    """Rooms and their slots."""
+
+    adult_rooms: list[AdultRoom] = Field(min_length=1)
+    larval_rooms: list[LarvalRoom] = Field(min_length=1)
+    pupal_holding: Q("million pupae", "pupae that can be held between larval collection and "
+                                      "harvest (leave out if not limiting)", ge=0) | None = None
+
+    @property
+    def cage_slots(self) -> int:
+        return sum(r.cage_slots for r in self.adult_rooms)
+
+    @property
+    def rack_slots(self) -> int:
+        return sum(r.rack_slots for r in self.larval_rooms)
+
+
+class Kitchen(_Model):
+    """The diet kitchen."""
+
+    diet_kg: WeeklyOrNumber = Field(description="diet that can be mixed each weekday [kg/day]")
+    holiday_kg: Q("kg/day", "diet that can be mixed on a holiday", ge=0) | None = Field(
+        None, description="diet that can be mixed on a holiday [kg/day] (default: Sunday's)")
+
+
+class Crew(_Model):
+    """A crew: its regular hours by weekday, overtime and the tasks it does."""
+
+    name: str = Field(min_length=1)
+    hours: WeeklyOrNumber = Field(description="regular crew hours each weekday [h/day]")
+    holiday_hours: Q("h/day", "regular hours on a holiday", ge=0) | None = Field(
+        None, description="regular hours on a holiday [h/day] (default: Sunday's)")
+    overtime_limit: Q("h/day", "overtime the crew may work in one day", ge=0) = 0.0
+    tasks: list[str] | Literal["all"] = Field(
+        "all", description="tasks this crew does: " + ", ".join(TASKS) + " (or 'all')")
+
+    @field_validator("tasks")
+    @classmethod
+    def _known_tasks(cls, v):
+        if v == "all":
+            return v
+        for t in v:
+            if t not in TASKS:
+                from planner.csvtable import closest
+                hint = closest(t, list(TASKS))
+                raise ValueError(f"unknown task {t!r}" + (f" (did you mean {hint!r}?)" if hint
+                                                         else "") + "; tasks are "
+                                 + ", ".join(TASKS))
+        return v
+
+
+class LabourStandards(_Model):
+    """Hours of work per unit of each task."""
+
+    diet_mixing: Q("h/kg", "per kg of diet mixed", ge=0) = 0.0
+    egg_collection: Q("h/cage/day", "per laying cage per day, for egg collection", ge=0) = 0.0
+    seeding: Q("h/tray", "per tray seeded", ge=0) = 0.0
+    larval_collection: Q("h/tray", "per tray whose larvae are collected", ge=0) = 0.0
+    harvest_packing: Q("h/million", "per million pupae harvested and packed for release",
+                       ge=0) = 0.0
+    cage_loading: Q("h/cage", "per cage loaded with pupae", ge=0) = 0.0
+    cage_care: Q("h/cage/day", "per occupied cage per day (feeding, water, cleaning)",
+                 ge=0) = 0.0
+    cage_discard: Q("h/cage", "per cage emptied and cleaned", ge=0) = 0.0
+
+
+class Costs(_Model):
+    """Variable and fixed costs, in the scenario's currency."""
+
+    currency: str = Field("EUR", description="currency of every cost")
+    diet_per_kg: Q("currency/kg", "larval diet", ge=0) = 0.0
+    per_tray_seeded: Q("currency/tray", "consumables per tray seeded", ge=0) = 0.0
+    per_cage_loaded: Q("currency/cage", "cage set-up per cage loaded", ge=0) = 0.0
+    per_cage_day: Q("currency/cage/day", "room running per occupied cage per day", ge=0) = 0.0
+    overtime_per_hour: Q("currency/h", "overtime", ge=0) = 0.0
+    shortfall_per_million: Q("currency/million", "price of an unmet million insects of an "
+                                                  "order (used only when an order cannot be "
+                                                  "met)", gt=0) = 1.0e5
+    regular_crew_per_week: Q("currency/week", "regular staff (fixed: reported, not "
+                                               "optimised)", ge=0) = 0.0
+
+
+class Calendar(_Model):
+    """Plan start, shipping days and holidays."""
+
+    start: dt.date = Field(description="first day of the plan (a Monday keeps plan weeks "
+                                       "aligned with calendar weeks)")
+    shipping_days: list[str] = Field(min_length=1, description="weekdays on which pupae "
+                                                               "ship (Mon ... Sun)")
+    holidays: list[dt.date] = Field(default_factory=list, description="dates with holiday "
+                                                                      "crew hours and kitchen")
+    ship_on_holidays: bool = Field(False, description="whether pupae may ship on holidays")
+
+    @field_validator("shipping_days")
+    @classmethod
+    def _days(cls, v):
+        keys = [weekday_key(d) for d in v]
+        if len(set(keys)) != len(keys):
+            raise ValueError("a shipping day is listed twice")
+        return [d for d in WEEKDAYS if d in keys]
+
+
+WeekRef = int | dt.date
+
+
+class Order(_Model):
+    """A customer's standing weekly order."""
+
+    customer: str = Field(min_length=1)
+    weekly_volume: Q("million/week", "insects of product per week", gt=0)
+    first_week: WeekRef = Field(1, description="first plan week (1 = the week starting on the "
+                                               "plan start) or a date in that week")
+    last_week: WeekRef | None = Field(None, description="last plan week or a date in it "
+                                                        "(default: open-ended)")
+    shortfall_per_million: Q("currency/million", "this order's own shortfall price (default: "
+                                                 "the scenario's)", gt=0) | None = None
+
+    @field_validator("first_week", "last_week")
+    @classmethod
+    def _positive_week(cls, v):
+        if isinstance(v, int) and not isinstance(v, bool) and v < 1:
+            raise ValueError("plan weeks are numbered from 1")
+        return v
+
+
+class StartCages(_Model):
+    """Cages already loaded on the plan's first day."""
+
+    load_date: dt.date
+    count: N("cages", "cages in the batch", gt=0)
+    discard_age: N("day", "age at whose end the batch is emptied", gt=0)
+    room: str | None = Field(None, description="adult room (default: any)")
+
+
+class StartTrays(_Model):
+    """Larval trays already seeded on the plan's first day."""
+
+    seed_date: dt.date
+    count: N("trays", "trays in the batch", gt=0)
+
+
+class StartState(_Model):
+    """What is in the facility on day 0: batches, or the standard week at a volume."""
+
+    standard_week_volume: Q("million/week", "start as if the standard week for this constant "
+                                            "weekly volume had been running", gt=0) | None = None
+    cages: list[StartCages] = Field(default_factory=list)
+    trays: list[StartTrays] = Field(default_factory=list)
+
+    @model_validator(mode="after")
+    def _one_kind(self):
+        if self.standard_week_volume is not None and (self.cages or self.trays):
+            raise ValueError("give either standard_week_volume or batches of cages and trays, "
+                             "not both")
+        if self.standard_week_volume is None and not self.cages:
+            raise ValueError("the start state has no cages: the colony cannot lay eggs; list "
+                             "the cages in the facility or set standard_week_volume")
+        return self
+
+
+class ExpansionOption(_Model):
+    """An addition the facility may buy (used by the expansion planner)."""
+
+    name: str = Field(min_length=1)
+    cage_slots: N("cage slots", "added per unit bought", ge=0) = 0
+    rack_slots: N("tray slots", "added per unit bought", ge=0) = 0
+    diet_kg: WeeklyOrNumber | None = Field(None, description="kitchen capacity added per unit "
+                                                             "[kg/day], by weekday or every day")
+    crew_hours: WeeklyOrNumber | None = Field(None, description="crew hours added per unit "
+                                                                "[h/day], by weekday or every day")
+    crew: str | None = Field(None, description="crew that gets the hours (default: the first)")
+    weekly_cost: Q("currency/week", "cost per unit per week once ready", ge=0)
+    ready: dt.date = Field(description="first day the addition can be used")
+    max_units: N("units", "how many may be bought", ge=1) = 1
+
+    @model_validator(mode="after")
+    def _adds_something(self):
+        if not (self.cage_slots or self.rack_slots or self.diet_kg or self.crew_hours):
+            raise ValueError("the option adds nothing: give cage_slots, rack_slots, diet_kg or "
+                             "crew_hours")
+        return self
+
+
+class PlanSettings(_Model):
+    """Horizon and solver settings."""
+
+    horizon_weeks: N("weeks", "length of the plan", ge=1, le=104) = 26
+    solver: Literal["cbc", "highs"] = Field("cbc", description="MILP solver")
+    time_limit: Q("s", "solver time limit", gt=0) = 120.0
+    relative_gap: Q("-", "relative optimality gap at which the solver may stop", ge=0,
+                    lt=1) = 0.005
+    lookahead_weeks: N("weeks", "weeks after the horizon whose orders the colony must still "
+                                "be able to serve (default: from the egg-to-harvest lead time)",
+                       ge=0) | None = None
+    cycle_days: Literal[7, 14] = Field(7, description="length of the standard week [day]")
+    single_discard_age: bool = Field(False, description="one discard age for all cages")
+    single_harvest_age: bool = Field(False, description="one harvest age for all batches")
+
+
+class Scenario(_Model):
+    """A facility's planning scenario: everything the planner needs."""
+
+    name: str = Field(min_length=1)
+    notes: str = ""
+    colony: ColonyModel
+    facility: Facility
+    kitchen: Kitchen
+    crews: list[Crew] = Field(min_length=1)
+    labour: LabourStandards = Field(default_factory=LabourStandards)
+    costs: Costs = Field(default_factory=Costs)
+    calendar: Calendar
+    orders: list[Order] = Field(default_factory=list)
+    start: StartState
+    expansion: list[ExpansionOption] = Field(default_factory=list)
+    plan: PlanSettings = Field(default_factory=PlanSettings)
+
+    @model_validator(mode="after")
+    def _cross_checks(self):
+        errs = []
+        names = [c.name for c in self.crews]
+        if len(set(names)) != len(names):
+            errs.append("crews: two crews have the same name")
+        owner: dict[str, str] = {}
+        for c in self.crews:
+            for t in (TASKS if c.tasks == "all" else c.tasks):
+                if t in owner:
+                    errs.append(f"crews: task {t!r} is done by both {owner[t]!r} and {c.name!r}; "
+                                "give each task to one crew")
+                owner[t] = c.name
+        missing = [t for t in TASKS if t not in owner]
+        if missing:
+            errs.append("crews: no crew does " + ", ".join(missing) + " (add them to a crew's "
+                        "tasks, or set tasks = 'all' on one crew)")
+        rooms = {r.name for r in self.facility.adult_rooms}
+        for i, b in enumerate(self.start.cages):
+            if b.room is not None and b.room not in rooms:
+                errs.append(f"start.cages[{i + 1}].room: no adult room is called {b.room!r}")
+            if b.load_date >= self.calendar.start:
+                errs.append(f"start.cages[{i + 1}].load_date {b.load_date} is not before the "
+                            f"plan start {self.calendar.start}")
+            last_day = b.load_date + dt.timedelta(days=b.discard_age -
+                                                  self.colony.rearing.cage_loading_age)
+            if last_day < self.calendar.start:
+                errs.append(f"start.cages[{i + 1}]: this batch was emptied on {last_day}, before "
+                            "the plan starts; leave it out")
+            if b.discard_age <= self.colony.rearing.cage_loading_age or \
+                    b.discard_age >= len(self.colony.life_table.age):
+                errs.append(f"start.cages[{i + 1}].discard_age {b.discard_age} is outside the "
+                            f"ages a cage can have (after {self.colony.rearing.cage_loading_age}, "
+                            f"within the life table)")
+        for i, b in enumerate(self.start.trays):
+            if b.seed_date >= self.calendar.start:
+                errs.append(f"start.trays[{i + 1}].seed_date {b.seed_date} is not before the "
+                            f"plan start {self.calendar.start}")
+        for i, o in enumerate(self.orders):
+            a, b = self.week_of(o.first_week), self.week_of(o.last_week) if o.last_week else None
+            if b is not None and b < a:
+                errs.append(f"orders[{i + 1}] ({o.customer}): the order ends (week {b}) before it "
+                            f"starts (week {a})")
+            if a < 1:
+                errs.append(f"orders[{i + 1}] ({o.customer}): first_week {o.first_week} is "
+                            "before the plan starts")
+        for i, e in enumerate(self.expansion):
+            if e.crew is not None and e.crew not in names:
+                errs.append(f"expansion[{i + 1}].crew: no crew is called {e.crew!r}")
+        if errs:
+            raise ValueError("\n".join(errs))
+        return self
+
+    # -- calendar helpers -------------------------------------------------------------
+    def week_of(self, ref: WeekRef | None) -> int | None:
+        """Plan week (1-based) of a week number or a date."""
+        if ref is None:
+            return None
+        if isinstance(ref, dt.date):
+            return (ref - self.calendar.start).days // 7 + 1
+        return int(ref)
+
+    def weekly_orders(self, weeks: int) -> dict[str, list[float]]:
+        """Ordered volume by customer for plan weeks 1..weeks [million/week]."""
+        out: dict[str, list[float]] = {}
+        for o in self.orders:
+            row = out.setdefault(o.customer, [0.0] * weeks)
+            a = self.week_of(o.first_week)
+            b = self.week_of(o.last_week) if o.last_week is not None else weeks
+            for w in range(max(a, 1), min(b, weeks) + 1):
+                row[w - 1] += o.weekly_volume
+        return out
