@@ -162,7 +162,9 @@ class Stages(_Model):
 class Rearing(_Model):
     """How the strain is reared, and the choices the facility allows."""
 
-    pupae_per_cage: N("pupae", "pupae loaded into one oviposition cage", gt=0)
+    pupae_per_cage: N("pupae", "pupae an oviposition cage holds when full", gt=0)
+    min_cage_fill: Q("-", "smallest share of pupae_per_cage a cage may be loaded with", ge=0,
+                     le=1) = 0.8
     cage_loading_age: N("day", "pupal age at which cages are loaded", gt=0)
     eggs_per_tray: Q("eggs", "eggs seeded on one larval tray, counted at collection "
                              "(losses until seeding are in lx)", gt=0)
