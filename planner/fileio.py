@@ -11,7 +11,7 @@ from pathlib import Path
 
 from planner.errors import InputError
 
-__all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text"]
+__all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text", "save_workbook"]
 
 
 @contextmanager
@@ -66,3 +66,17 @@ def read_text(path: str | Path, kind: str, hint: str = "") -> str:
     except UnicodeDecodeError:
         raise InputError("the file is not UTF-8 text" + (f" ({hint})" if hint else ""),
                          source=path.name) from None
+
+
+def save_workbook(wb, target: str | Path) -> Path:
+    """Save an openpyxl workbook atomically, without openpyxl stamping the current time
+    into its document properties (the same content gives the same file)."""
+    import zipfile
+
+    from openpyxl.writer.excel import ExcelWriter
+
+    def write(tmp: Path) -> None:
+        with zipfile.ZipFile(tmp, "w", zipfile.ZIP_DEFLATED, allowZip64=True) as archive:
+            ExcelWriter(wb, archive).write_data()
+
+    return write_atomic(target, write)

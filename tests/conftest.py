@@ -32,3 +32,38 @@ def fly_csv() -> Path:
 @pytest.fixture
 def moth_csv() -> Path:
     return MODELS / "fernhollow-moth-lifetable.csv"
+
+
+# -- solved plans shared across test packages (solved once per session) ---------------
+
+@pytest.fixture(scope="session")
+def fly():
+    from planner.scenario import demo_scenario_path, load_scenario
+    return load_scenario(demo_scenario_path("fly"))
+
+
+@pytest.fixture(scope="session")
+def moth():
+    from planner.scenario import demo_scenario_path, load_scenario
+    return load_scenario(demo_scenario_path("moth"))
+
+
+@pytest.fixture(scope="session")
+def fly_plan(fly):
+    """The demo's full 26-week plan with CBC."""
+    from planner.optimise import plan_horizon, settings_for
+    return plan_horizon(fly, settings_for(fly, time_limit=120))
+
+
+@pytest.fixture(scope="session")
+def moth_plan(moth):
+    """The second scenario, 8 weeks, with its real shortfalls (a hard instance: CBC may
+    stop at the time limit with a feasible plan)."""
+    from planner.optimise import plan_horizon, settings_for
+    return plan_horizon(moth, settings_for(moth, time_limit=25), horizon_weeks=8)
+
+
+@pytest.fixture(scope="session")
+def fly_schedule(fly_plan):
+    from planner.schedule import build_schedule
+    return build_schedule(fly_plan)

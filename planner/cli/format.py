@@ -100,16 +100,18 @@ def table(rows: Iterable[Sequence], headers: Sequence[str], *, digits: int = 4,
 
 def kv_table(items: Iterable[tuple[str, object, str]], *, digits: int = 4,
              title: str | None = None) -> str:
-    """A quantity / value / unit table."""
-    rows = [(name, value if isinstance(value, str) else num(value, digits), unit)
-            for name, value, unit in items]
-    body = [[n, v, u] for n, v, u in rows]
-    w0 = max([len("quantity")] + [len(r[0]) for r in body])
-    w1 = max([len("value")] + [len(r[1]) for r in body])
+    """A quantity / value / unit table: numbers right-aligned, text left-aligned."""
+    rows = [(name, value if isinstance(value, str) else num(value, digits), unit,
+             not isinstance(value, str)) for name, value, unit in items]
+    w0 = max([len("quantity")] + [len(r[0]) for r in rows])
+    wn = max([len("value")] + [len(r[1]) for r in rows if r[3]])
+    w1 = max([wn] + [len(r[1]) for r in rows])
     out = [title] if title else []
-    out.append(f"{'quantity'.ljust(w0)}  {'value'.rjust(w1)}  unit")
+    out.append(f"{'quantity'.ljust(w0)}  {'value'.rjust(wn).ljust(w1)}  unit")
     out.append(f"{'-' * w0}  {'-' * w1}  ----")
-    out.extend(f"{n.ljust(w0)}  {v.rjust(w1)}  {u}".rstrip() for n, v, u in body)
+    for n, v, u, is_num in rows:
+        shown = v.rjust(wn).ljust(w1) if is_num else v.ljust(w1)
+        out.append(f"{n.ljust(w0)}  {shown}  {u}".rstrip())
     return "\n".join(out)
 
 

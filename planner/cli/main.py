@@ -34,7 +34,7 @@ class _UsageError(Exception):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from planner.cli import demo_cmd, demography_cmds, scenario_cmds
+    from planner.cli import demography_cmds, plan_cmds, scenario_cmds
 
     parser = _Parser(
         prog="broodline",
@@ -46,7 +46,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub.required = True
     demography_cmds.register(sub)
     scenario_cmds.register(sub)
-    demo_cmd.register(sub)
+    plan_cmds.register(sub)
     return parser
 
 

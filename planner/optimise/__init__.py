@@ -36,10 +36,12 @@ def plan_horizon(scn, settings: SolveSettings | None = None, *, start: StartBatc
     A scenario that starts from the standard week gets its start batches from a solve of
     the standard week at that volume first.
     """
+    import dataclasses
+
     from planner.optimise.standard_week import start_batches
     settings = settings or settings_for(scn)
     if start is None:
-        start = start_batches(scn, settings)
+        start = start_batches(scn, dataclasses.replace(settings, log_path=None))
     data = compile_horizon(scn, start, horizon_weeks=horizon_weeks, extra_orders=extra_orders,
                            use_expansion=use_expansion)
     built = build_model(data)

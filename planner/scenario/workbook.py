@@ -33,7 +33,6 @@ import math
 import re
 import types
 import typing
-import zipfile
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
@@ -43,7 +42,7 @@ from pydantic.fields import FieldInfo
 
 from planner.csvtable import closest
 from planner.errors import InputError, InputErrors
-from planner.fileio import write_atomic
+from planner.fileio import save_workbook
 from planner.scenario.load import format_loc, validate
 from planner.scenario.schema import TASKS, WEEKDAYS, Scenario, Weekly
 
@@ -678,13 +677,6 @@ def _build(scenario: Scenario, intro: list[str]):
     return wb
 
 
-def _save_workbook(wb, target: Path) -> None:
-    """Save without openpyxl stamping the current time into the document properties."""
-    from openpyxl.writer.excel import ExcelWriter
-    with zipfile.ZipFile(target, "w", zipfile.ZIP_DEFLATED, allowZip64=True) as archive:
-        ExcelWriter(wb, archive).write_data()
-
-
 def _check_target(path: Path) -> None:
     if path.suffix.lower() != ".xlsx":
         raise InputError("an input workbook must be an .xlsx file", source=str(path))
@@ -716,7 +708,7 @@ def write_workbook(scenario: Scenario, path: str | Path, *,
     path = Path(path)
     _check_target(path)
     wb = _build(scenario, intro if intro is not None else _DEFAULT_INTRO)
-    return write_atomic(path, lambda tmp: _save_workbook(wb, tmp))
+    return save_workbook(wb, path)
 
 
 TEMPLATE_INTRO = [

@@ -81,12 +81,6 @@ def test_cohort_json_has_intervals(tmp_path, capsys):
     assert "jackknife" in data["intervals"]
 
 
-def test_demo_runs(capsys):
-    code, out, err = run(["demo"], capsys)
-    assert code == 0, err
-    assert "invented" in out and "Harvest at the allowed ages" in out
-
-
 BAD_TABLES = {
     "missing column": "age,lx\n0,1\n",
     "extra column": "age,lx,mx,notes\n0,1,0,a\n",

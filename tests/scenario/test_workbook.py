@@ -395,11 +395,13 @@ def test_failed_write_leaves_the_old_file(tmp_path, demo, monkeypatch):
     target = tmp_path / "plan.xlsx"
     target.write_bytes(b"the previous workbook")
 
-    def broken(wb, tmp):
-        tmp.write_bytes(b"half a workbook")
+    from openpyxl.writer.excel import ExcelWriter
+
+    def broken(self):
+        self._archive.writestr("half.xml", "half a workbook")
         raise OSError("disk full")
 
-    monkeypatch.setattr(workbook, "_save_workbook", broken)
+    monkeypatch.setattr(ExcelWriter, "write_data", broken)
     with pytest.raises(OSError, match="disk full"):
         write_workbook(demo, target)
     assert target.read_bytes() == b"the previous workbook"

@@ -1,0 +1,126 @@
+"""`broodline plan` and `broodline demo`, and the README's two Quick-start lines."""
+
+import json
+import re
+import shlex
+import subprocess
+import sys
+from pathlib import Path
+
+import openpyxl
+import pytest
+
+from planner.cli import plan_cmds
+from planner.cli.main import main
+from planner.cli.progress import parse_progress
+from planner.scenario import demo_scenario_path
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def quick_start_lines():
+    text = (ROOT / "README.md").read_text()
+    block = re.search(r"^## Quick start\n.*?^```\n(.*?)^```", text, re.S | re.M).group(1)
+    return [ln for ln in block.splitlines() if ln.strip()]
+
+
+@pytest.fixture
+def solved(monkeypatch, fly_plan):
+    """Reuse the session's solved demo plan instead of solving again."""
+    monkeypatch.setattr(plan_cmds, "plan_horizon", lambda scn, settings: fly_plan)
+    return fly_plan
+
+
+def test_quick_start_has_two_lines_and_the_first_runs_the_demo(tmp_path, monkeypatch, solved,
+                                                                capsys):
+    lines = quick_start_lines()
+    assert len(lines) == 2
+    first = lines[0].split("&&")[-1].strip()
+    assert first.startswith("broodline demo")
+    monkeypatch.chdir(tmp_path)
+    code = main(shlex.split(first)[1:])
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    wb = openpyxl.load_workbook(tmp_path / "broodline-demo-plan.xlsx")
+    assert "Tasks" in wb.sheetnames and "wrote" in out
+
+
+def test_quick_start_second_line_installs_the_extras_and_runs_pytest():
+    line = quick_start_lines()[1]
+    assert "pip install" in line and "[test" in line and "pytest" in line
+    extras = re.search(r"\[(.*?)\]", line).group(1).split(",")
+    pyproject = (ROOT / "pyproject.toml").read_text()
+    for extra in extras:
+        assert re.search(rf"^{extra} = \[", pyproject, re.M), extra
+    test_cmd = line.split("&&")[-1].strip()
+    proc = subprocess.run(shlex.split(test_cmd) + ["--collect-only", "-q", "tests/demography"],
+                          cwd=ROOT, capture_output=True, text=True, timeout=300,
+                          executable=None) if test_cmd.startswith("python") else None
+    assert proc is None or proc.returncode == 0, proc.stdout[-2000:]
+
+
+def test_ci_runs_the_readme_lines():
+    ci = (ROOT / ".ci" / "run").read_text()
+    assert "Quick start" in ci and "README.md" in ci
+
+
+def test_plan_json_and_csv(tmp_path, solved, capsys):
+    out = tmp_path / "p.xlsx"
+    code = main(["plan", str(demo_scenario_path("fly")), "-o", str(out), "--csv",
+                 str(tmp_path / "csv"), "--json"])
+    text, err = capsys.readouterr()
+    assert code == 0, err
+    data = json.loads(text)
+    for key in ("status", "objective", "best_bound", "gap", "total_cost", "cost_per_million",
+                "weeks", "bottlenecks", "outputs"):
+        assert key in data
+    assert data["weeks"][0]["week"] == 1 and {"ordered", "released", "shortfall"} <= set(
+        data["weeks"][0])
+    assert Path(data["outputs"]["workbook"]).exists()
+    assert (tmp_path / "csv" / "daily.csv").exists() and (tmp_path / "csv" / "weekly.csv").exists()
+
+
+def test_plan_default_output_is_beside_the_scenario(tmp_path, solved, capsys):
+    scn = tmp_path / "unit.toml"
+    src = demo_scenario_path("fly")
+    scn.write_text(src.read_text().replace('"../fernhollow-fly.toml"',
+                                           repr(str(src.parent.parent / "fernhollow-fly.toml"))
+                                           .replace("'", '"')))
+    code = main(["plan", str(scn), "--quiet"])
+    capsys.readouterr()
+    assert code == 0
+    assert (tmp_path / "unit-plan.xlsx").exists()
+
+
+def test_no_plan_is_exit_3_and_writes_nothing(tmp_path, monkeypatch, fly_plan, capsys):
+    import copy
+    broken = copy.copy(fly_plan)
+    broken.solution = copy.copy(fly_plan.solution)
+    info = copy.copy(fly_plan.info)
+    info.status, info.message = "no solution", "the solver stopped before finding any plan"
+    broken.solution.info = info
+    monkeypatch.setattr(plan_cmds, "plan_horizon", lambda scn, settings: broken)
+    out = tmp_path / "p.xlsx"
+    code = main(["plan", str(demo_scenario_path("fly")), "-o", str(out)])
+    _, err = capsys.readouterr()
+    assert code == plan_cmds.EXIT_NO_PLAN and "no plan" in err and not out.exists()
+
+
+def test_bad_options_are_one_line(capsys):
+    code = main(["plan", str(demo_scenario_path("fly")), "--gap", "5"])
+    _, err = capsys.readouterr()
+    assert code == 2 and err.count("\n") == 1 and "gap" in err
+
+
+def test_progress_lines_are_parsed():
+    # lines as CBC 2.10 and HiGHS 1.16 write them to their logs
+    cbc = ("Cbc0010I After 0 nodes, 1 on tree, 13633.728 best solution, best possible "
+           "13317.769 (0.05 seconds)")
+    assert parse_progress(cbc) == (13633.728, 13317.769)
+    highs = ("L       0       0         0   0.00%   89049.806119    89199.734727       0.17%"
+             "      102     24      0       557     0.8s")
+    assert parse_progress(highs) == (89199.734727, 89049.806119)
+    start = ("J       0       0         0   0.00%   -inf            2209730.384411     Large"
+             "        0      0      0         0     0.0s")
+    assert parse_progress(start) == (2209730.384411, None)
+    assert parse_progress("nothing yet") == (None, None)
