@@ -29,7 +29,6 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _timing import median_seconds  # noqa: E402
 
-from planner.demography import single_stage_harvest  # noqa: E402,F401
 from planner.errors import DemographyError  # noqa: E402
 from planner.optimise import (available_solvers, build_model, compile_horizon,  # noqa: E402
                               read_back, settings_for, solve, verify_plan)

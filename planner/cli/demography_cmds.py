@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import argparse
 import math
 
-from planner.cli.format import dumps, kv_table, num, table
+from planner.cli.format import checked, dumps, kv_table, num, table
 from planner.demography import (LifeTable, all_stage_harvest_fraction, analyse_cohort,
                                 harvest_grid, read_cohort_records, read_life_table,
                                 read_stage_matrix, single_stage_harvest)
@@ -14,23 +13,10 @@ from planner.errors import DemographyError
 __all__ = ["register", "lifetable_report", "harvest_report"]
 
 
-def _checked(convert, ok, rule: str):
-    """An argparse type: convert the text, then check it against ``ok``."""
-    def parse(text: str):
-        try:
-            value = convert(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}") from None
-        if not ok(value):
-            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}")
-        return value
-    return parse
-
-
-_fraction = _checked(float, lambda v: 0 < v <= 1, "a fraction in (0, 1]")
-_positive = _checked(float, lambda v: 0 < v < math.inf, "a positive number")
-_count = _checked(int, lambda v: v >= 0, "a whole number >= 0")
-_age = _checked(float, lambda v: 0 <= v < math.inf, "an age (a number >= 0)")
+_fraction = checked(float, lambda v: 0 < v <= 1, "a fraction in (0, 1]")
+_positive = checked(float, lambda v: 0 < v < math.inf, "a positive number")
+_count = checked(int, lambda v: v >= 0, "a whole number >= 0")
+_age = checked(float, lambda v: 0 <= v < math.inf, "an age (a number >= 0)")
 
 
 def register(sub) -> None:

@@ -140,3 +140,19 @@ def to_jsonable(obj):
 def dumps(obj) -> str:
     """One JSON object, valid for strict parsers (no NaN or Infinity)."""
     return json.dumps(to_jsonable(obj), indent=2, allow_nan=False, ensure_ascii=False)
+
+
+def checked(convert, ok, rule: str):
+    """An argparse type: convert the text, then check it against ``ok``; the message
+    reads ``'<text>' is not <rule>``."""
+    import argparse
+
+    def parse(text: str):
+        try:
+            value = convert(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}") from None
+        if not ok(value):
+            raise argparse.ArgumentTypeError(f"{text!r} is not {rule}")
+        return value
+    return parse

@@ -34,7 +34,7 @@ class _UsageError(Exception):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from planner.cli import demography_cmds, plan_cmds, scenario_cmds
+    from planner.cli import answer_cmds, demography_cmds, plan_cmds, risk_cmds, scenario_cmds
 
     parser = _Parser(
         prog="broodline",
@@ -47,6 +47,8 @@ def build_parser() -> argparse.ArgumentParser:
     demography_cmds.register(sub)
     scenario_cmds.register(sub)
     plan_cmds.register(sub)
+    answer_cmds.register(sub)
+    risk_cmds.register(sub)
     return parser
 
 

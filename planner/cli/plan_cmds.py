@@ -8,7 +8,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from planner.cli.format import dumps, kv_table, num, table
+from planner.cli.format import checked, dumps, kv_table, num, table
 from planner.cli.progress import Progress
 from planner.optimise import plan_horizon, settings_for
 from planner.reports import CAUTIONS, write_csvs, write_plan_workbook
@@ -20,14 +20,7 @@ __all__ = ["register", "solver_options", "run_plan", "EXIT_NO_PLAN"]
 EXIT_NO_PLAN = 3
 
 
-def _positive(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if not (v > 0 and math.isfinite(v)):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a positive number")
-    return v
+_positive = checked(float, lambda v: 0 < v < math.inf, "a positive number")
 
 
 def _gap(text: str) -> float:

@@ -62,7 +62,25 @@ FAMILIES = {
     "one_harvest_age": ("-", "sum_theta use_harvest[theta] = 1", "-"),
     "harvest_choice": ("laying day d, theta", "release[d,theta] <= Pmax_d use_harvest[theta]",
                        "pupae"),
+    "stay_close": ("cage or tray decision, side", "dev >= x - x_ref and dev >= x_ref - x, each "
+                   "unit of dev priced at a tiny cost (quotes only)", "cages or trays"),
 }
+
+
+def _stay_close(m: LinearModel, reference: dict, cage_cols, tray_cols, stick: float) -> None:
+    cols = np.concatenate([cage_cols.reshape(-1), tray_cols])
+    ref = np.concatenate([np.asarray(reference["cages"], float).reshape(-1),
+                          np.asarray(reference["trays"], float)])
+    dev = m.add_block("deviation", [(int(c),) for c in cols], 0, np.inf, False, "units")
+    k = np.arange(cols.size)
+    rows = np.concatenate([k, k, cols.size + k, cols.size + k])
+    cc = np.concatenate([dev.offset + k, cols, dev.offset + k, cols])
+    vals = np.concatenate([np.ones(cols.size), -np.ones(cols.size), np.ones(cols.size),
+                           np.ones(cols.size)])
+    m.add_family("stay_close", [("up", int(c)) for c in cols] + [("down", int(c)) for c in cols],
+                 ">=", rows, cc, vals, np.concatenate([-ref, ref]), unit="units",
+                 description=FAMILIES["stay_close"][1])
+    m.add_cost("stay_close", dev.offset + k, np.full(cols.size, stick))
 
 
 class BuiltModel:
@@ -129,7 +147,8 @@ class _Rows:
         return np.concatenate(self.r), np.concatenate(self.c), np.concatenate(self.v)
 
 
-def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
+def build_model(data: PlanData, *, relax: bool = False, reference: dict | None = None,
+                stick: float = 1e-3) -> BuiltModel:
     """Build the programme.
 
     Parameters
@@ -137,6 +156,11 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
     data : PlanData
     relax : bool
         Drop integrality (the LP relaxation).
+    reference : dict, optional
+        ``{"cages": array (days x discard ages), "trays": array (days)}`` of another plan
+        on the same days: every unit of difference costs ``stick`` [currency], so that of
+        equally cheap plans the one closest to the reference is chosen (quotes compare a
+        plan with and without an order this way). Family ``stay_close``.
     """
     scn = data.scenario
     m = LinearModel(f"broodline_{data.mode}")
@@ -157,6 +181,8 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
         if adds.size:
             max_options[attr] = float((adds.max(axis=1) *
                                        [o.max_units for o in data.options]).sum())
+    # tight bounds (they strengthen the LP relaxation a great deal); where shadow prices
+    # of the rows are wanted, the caller loosens them (planner.optimise.capacity)
     cage_ub = float(data.cage_slots.max() + max_options["cage_slots"])
     kitchen_max = data.kitchen + (data.option_adds("diet_kg").T @
                                   np.array([o.max_units for o in data.options], float)
@@ -201,7 +227,7 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
     short = m.add_block("shortfall", [(data.customers[c], w + 1) for c, w in order_cells], 0,
                         np.inf, False, "million")
     buy = m.add_block("buy", [(o.name,) for o in data.options], 0,
-                      [o.max_units for o in data.options], integer, "units")
+                      [o.max_units for o in data.options], integer, "units", phase=0)
 
     cage_cols = cages.offset + np.arange(n * len(deltas)).reshape(n, len(deltas))
     tray_cols = trays.offset + days
@@ -408,7 +434,8 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
 
     # -- policy switches (variable upper bounds: the convex hull of each choice) ---------
     if scn.plan.single_discard_age and len(deltas) > 1:
-        use = m.add_block("use_discard", [(d,) for d in deltas], 0, 1, integer, "binary")
+        use = m.add_block("use_discard", [(d,) for d in deltas], 0, 1, integer, "binary",
+                          phase=0)
         m.add_family("one_discard_age", [()], "==", np.zeros(len(deltas)),
                      use.offset + np.arange(len(deltas)), np.ones(len(deltas)), [1.0],
                      description=FAMILIES["one_discard_age"][1])
@@ -420,7 +447,8 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
                      "<=", *fam.arrays(), np.zeros(n * len(deltas)), unit="cages",
                      description=FAMILIES["discard_choice"][1])
     if scn.plan.single_harvest_age and len(thetas) > 1:
-        use = m.add_block("use_harvest", [(t,) for t in thetas], 0, 1, integer, "binary")
+        use = m.add_block("use_harvest", [(t,) for t in thetas], 0, 1, integer, "binary",
+                          phase=0)
         m.add_family("one_harvest_age", [()], "==", np.zeros(len(thetas)),
                      use.offset + np.arange(len(thetas)), np.ones(len(thetas)), [1.0],
                      description=FAMILIES["one_harvest_age"][1])
@@ -451,6 +479,8 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
         weeks_ready = [max(0, (n - max(r, 0)) / 7.0) for r in data.option_ready]
         m.add_cost("expansion", buy.offset + np.arange(buy.size),
                    [o.weekly_cost * wk for o, wk in zip(data.options, weeks_ready)])
+    if reference is not None:
+        _stay_close(m, reference, cage_cols, tray_cols, stick)
     m.c0 = costs.per_cage_day * float(occ0.sum())
     const["order_cells"] = order_cells
     const["cohorts"] = cohorts

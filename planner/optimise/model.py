@@ -157,7 +157,17 @@ class LinearModel:
         block = VariableBlock(name, list(labels), lb, ub, integer, self.n, unit, phase)
         self.blocks[name] = block
         self.n += m
+        for fam in self.families.values():  # a block added late: widen the matrices
+            fam.A = sp.hstack([fam.A, sp.csr_matrix((fam.size, m))]).tocsr()
         return block
+
+    def add_to_family(self, name: str, rows, cols, vals) -> None:
+        """Add coefficients to an existing family's rows."""
+        fam = self.families[name]
+        extra = sp.csr_matrix((np.asarray(vals, float), (np.asarray(rows, np.int64),
+                                                          np.asarray(cols, np.int64))),
+                              shape=fam.A.shape)
+        fam.A = (fam.A + extra).tocsr()
 
     @property
     def lb(self) -> np.ndarray:

@@ -8,7 +8,6 @@ convolutions over the days (start batches are loads on negative days).
 
 from __future__ import annotations
 
-import datetime as dt
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -18,7 +17,7 @@ from planner.optimise.build import PUPAE_UNIT, BuiltModel
 from planner.optimise.data import PlanData
 from planner.optimise.solve import Solution, SolveInfo
 
-__all__ = ["PlanResult", "read_back", "TASK_ORDER"]
+__all__ = ["PlanResult", "read_back", "operating_cost", "TASK_ORDER"]
 
 #: Order in which a crew works through its tasks in a day.
 TASK_ORDER = ["diet_mixing", "egg_collection", "seeding", "larval_collection",
@@ -540,3 +539,11 @@ def _ranges(weeks: list[int]) -> str:
     if start is not None:
         parts.append(f"{start}" if start == prev else f"{start}-{prev}")
     return ", ".join(parts)
+
+
+def operating_cost(res: PlanResult) -> float:
+    """Cost of running the plan over the horizon, without the shortfall price
+    [currency]."""
+    c = res.costs
+    keep = (c["period"] == "horizon") & (c["term"] != "shortfall")
+    return float(c.loc[keep, "cost"].sum())

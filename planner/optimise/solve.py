@@ -16,6 +16,7 @@ solver's objective number is not shown), ``solver missing``.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import math
 import os
 import re
@@ -54,6 +55,9 @@ class SolveSettings:
         Where the solver writes its log (read for the progress display and CBC's bound).
     strategy : str
         ``"two-phase"`` or ``"direct"`` (see :func:`solve`).
+    absolute_gap : float, optional
+        [objective unit] the solver may also stop when incumbent - bound is below this
+        (for objectives whose optimum is near 0, where a relative gap means nothing).
     """
 
     solver: str = "cbc"
@@ -63,6 +67,7 @@ class SolveSettings:
     duals: bool = True
     log_path: str | None = None
     strategy: str = "two-phase"
+    absolute_gap: float | None = None
 
 
 @dataclass
@@ -169,6 +174,7 @@ def _make_solver(s: SolveSettings, tmpdir: str, log_path: str | None, lp_only: b
     if s.solver == "cbc":
         solver = pulp.PULP_CBC_CMD(msg=False, timeLimit=s.time_limit,
                                    gapRel=None if lp_only else s.relative_gap,
+                                   gapAbs=None if lp_only else s.absolute_gap,
                                    threads=s.threads, logPath=log_path, warmStart=warm)
         solver.tmpDir = tmpdir
         return solver
@@ -177,7 +183,8 @@ def _make_solver(s: SolveSettings, tmpdir: str, log_path: str | None, lp_only: b
         if log_path:
             kwargs = {"log_file": log_path, "log_to_console": False}
         return pulp.HiGHS(msg=bool(log_path), timeLimit=s.time_limit,
-                          gapRel=None if lp_only else s.relative_gap, threads=s.threads,
+                          gapRel=None if lp_only else s.relative_gap,
+                          gapAbs=None if lp_only else s.absolute_gap, threads=s.threads,
                           **kwargs)
     raise SolverError(f"unknown solver {s.solver!r}; use 'cbc' or 'highs'")
 
@@ -217,7 +224,8 @@ def _run(prob, variables, model, settings: SolveSettings, tmp: str, log: str,
     CBC starts from the variables' current values."""
     run = SolveSettings(solver=settings.solver, time_limit=max(time_limit, 1.0),
                         relative_gap=gap if gap is not None else settings.relative_gap,
-                        threads=settings.threads, duals=False)
+                        threads=settings.threads, duals=False,
+                        absolute_gap=settings.absolute_gap)
     solver = _make_solver(run, tmp, log, warm=warm)
     t0 = time.perf_counter()
     try:
@@ -244,8 +252,12 @@ def _run(prob, variables, model, settings: SolveSettings, tmp: str, log: str,
     return pulp.LpStatus[prob.status], prob.sol_status, x, bound, seconds
 
 
-def solve(model: LinearModel, settings: SolveSettings = SolveSettings()) -> Solution:
+def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
+          initial: np.ndarray | None = None) -> Solution:
     """Solve the model; never raises for an infeasible or unsolved model (see status).
+
+    ``initial``: a whole plan of the same model (values of every variable) that CBC starts
+    from (ignored by HiGHS, whose PuLP interface takes no start).
 
     Strategy ``"two-phase"`` (default): the integer blocks marked ``phase=2`` (larval
     trays, whose counts are large and whose LP values are nearly whole) are relaxed while
@@ -257,19 +269,28 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings()) -> Solu
     _check_available(settings.solver)
     prob, variables, rows = to_pulp(model)
     integ = model.integrality.astype(bool)
-    phase2 = np.zeros(model.n, bool)
+    phase = np.ones(model.n, int)
     for b in model.blocks.values():
-        if b.integer and b.phase == 2:
-            phase2[b.offset:b.offset + b.size] = True
+        phase[b.offset:b.offset + b.size] = b.phase
+    phase2 = integ & (phase == 2)
+    phase0 = integ & (phase == 0)
     two = settings.strategy == "two-phase" and phase2.any() and (integ & ~phase2).any()
+    start = np.asarray(initial, float) if initial is not None and settings.solver == "cbc" \
+        else None
+    warm = _set_start(variables, start)
     with tempfile.TemporaryDirectory(prefix="broodline-solve-") as tmp:
         log = settings.log_path or os.path.join(tmp, "solver.log")
         if not two:
             status, sol_status, x, bound, seconds = _run(prob, variables, model, settings, tmp,
-                                                         log, settings.time_limit, None)
+                                                         log, settings.time_limit, None,
+                                                         warm=warm)
             info = _interpret(settings, status, sol_status, x, model, bound, seconds)
+        elif phase0.any():
+            info, x = _with_phase0(prob, variables, model, settings, tmp, log, integ, phase0,
+                                   phase2, start=start)
         else:
-            info, x = _two_phase(prob, variables, model, settings, tmp, log, integ, phase2)
+            info, x = _two_phase(prob, variables, model, settings, tmp, log, integ, phase2,
+                                 start=start)
         duals: dict[str, np.ndarray] = {}
         relaxed: dict[str, np.ndarray] = {}
         if settings.duals and info.has_plan:
@@ -283,7 +304,49 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings()) -> Solu
     return Solution(model=model, x=x, info=info, duals=duals, relaxed_duals=relaxed)
 
 
-def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2):
+def _set_start(variables, start: np.ndarray | None) -> bool:
+    """Give the variables a start plan's values (for CBC's warm start); False if none."""
+    if start is None:
+        return False
+    for v, val in zip(variables, start):
+        v.varValue = float(val)
+    return True
+
+
+def _with_phase0(prob, variables, model, settings, tmp, log, integ, phase0, phase2,
+                 start=None):
+    """Phase 0: the few large choices (options bought, policy binaries) with every other
+    integer relaxed; then, with those fixed, the two-phase solve of the rest. The gap is
+    measured against phase 0's bound, a valid bound of the full problem."""
+    t0 = time.perf_counter()
+    rest = np.flatnonzero(integ & ~phase0)
+    for k in rest:
+        variables[k].cat = pulp.LpContinuous
+    status, sol_status, x0, bound0, t = _run(prob, variables, model, settings, tmp,
+                                             log + ".0", 0.3 * settings.time_limit,
+                                             settings.relative_gap / 5,
+                                             warm=_set_start(variables, start))
+    for k in rest:
+        variables[k].cat = pulp.LpInteger
+    info0 = _interpret(settings, status, sol_status, x0, model, bound0, t)
+    if not info0.has_plan:
+        return info0, x0
+    fixed = np.flatnonzero(phase0)
+    saved = [(variables[k].lowBound, variables[k].upBound) for k in fixed]
+    for k in fixed:
+        variables[k].lowBound = variables[k].upBound = float(x0[k])
+    left = dataclasses.replace(settings, time_limit=max(settings.time_limit -
+                                                         (time.perf_counter() - t0), 10.0))
+    info, x = _two_phase(prob, variables, model, left, tmp, log, integ & ~phase0, phase2,
+                         outer_bound=info0.best_bound, start=start)
+    for k, (lo, hi) in zip(fixed, saved):
+        variables[k].lowBound, variables[k].upBound = lo, hi
+    info.seconds = time.perf_counter() - t0
+    return info, x
+
+
+def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2, outer_bound=None,
+               start=None):
     """Phase 1 with the phase-2 integers relaxed; phase 2a with the other integers fixed;
     phase 2b, if time and gap allow, in the neighbourhood 'keep every unit, add at most
     one' of phase 1, started from 2a's plan; phase 3, if the gap is still open, the whole
@@ -296,7 +359,8 @@ def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2):
     for k in second:
         variables[k].cat = pulp.LpContinuous
     status, sol_status, x1, bound, t1 = _run(prob, variables, model, settings, tmp, log,
-                                             0.7 * budget, None)
+                                             0.7 * budget, None,
+                                             warm=_set_start(variables, start))
     for k in second:
         variables[k].cat = pulp.LpInteger
     info1 = _interpret(settings, status, sol_status, x1, model, bound, t1)
@@ -315,7 +379,7 @@ def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2):
     if _interpret(settings, st, ss, x2, model, None, 0.0).has_plan:
         best_x, best_obj = x2, float(model.c @ x2 + model.c0)
     gap = _gap(best_obj, info1.best_bound) if best_x is not None else None
-    if remaining() > 2.0 and (gap is None or gap > settings.relative_gap):
+    if remaining() > 2.0 and _open(best_obj, info1.best_bound, settings):
         for k, (lo, hi) in zip(first, saved):
             variables[k].lowBound = float(x1[k])
             variables[k].upBound = float(x1[k] + 1) if hi is None else float(min(x1[k] + 1, hi))
@@ -328,9 +392,9 @@ def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2):
                 best_x, best_obj = x3, obj3
     for k, (lo, hi) in zip(first, saved):
         variables[k].lowBound, variables[k].upBound = lo, hi
-    bound = info1.best_bound
-    gap = _gap(best_obj, bound) if best_x is not None else None
-    if remaining() > 2.0 and (gap is None or gap > settings.relative_gap):
+    # with phases fixed outside, only the outer bound bounds the full problem
+    bound = info1.best_bound if outer_bound is None else outer_bound
+    if outer_bound is None and remaining() > 2.0 and _open(best_obj, bound, settings):
         # phase 3: the whole problem, started from the best whole plan so far
         if best_x is not None:
             for v, val in zip(variables, best_x):
@@ -350,7 +414,7 @@ def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2):
         info1.objective = None
         return info1, x1
     gap = _gap(best_obj, bound)
-    limited = gap is None or gap > settings.relative_gap * (1 + 1e-9)
+    limited = _open(best_obj, bound, settings)
     if not limited:
         msg = "optimal within the relative gap" + (f" ({gap:.2%})" if gap and gap > 1e-9 else "")
         status = "optimal"
@@ -391,6 +455,15 @@ def _interpret(s, status, sol_status, x, model, bound, seconds) -> SolveInfo:
     return SolveInfo(s.solver, "no solution", False, True, None, bound, None, seconds,
                      f"the solver stopped (time limit {s.time_limit:g} s) before finding any "
                      "plan; give it more time (--time-limit) or a larger gap")
+
+
+def _open(objective: float, bound: float | None, s: SolveSettings) -> bool:
+    """Whether the gap between a plan and the bound is still above the settings' target."""
+    if objective is None or not math.isfinite(objective) or bound is None:
+        return True
+    if s.absolute_gap is not None and objective - bound <= s.absolute_gap:
+        return False
+    return _gap(objective, bound) > s.relative_gap * (1 + 1e-9)
 
 
 def _gap(objective: float, bound: float | None) -> float | None:

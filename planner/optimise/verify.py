@@ -13,8 +13,6 @@ import datetime as dt
 from collections import defaultdict
 from dataclasses import dataclass
 
-import numpy as np
-
 from planner.scenario.schema import TASKS, WEEKDAYS
 
 __all__ = ["Violation", "verify_plan"]

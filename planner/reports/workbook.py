@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 from openpyxl import Workbook
-from openpyxl.chart import BarChart, LineChart, Reference
+from openpyxl.chart import AreaChart, BarChart, LineChart, Reference
 from openpyxl.styles import Alignment, Border, Font, PatternFill, Side
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.pagebreak import Break
@@ -27,7 +27,7 @@ from planner.reports.tables import (daily_table, daily_units, utilisation_summar
                                     weekly_costs, weekly_table)
 from planner.scenario.schema import WEEKDAYS
 
-__all__ = ["write_plan_workbook", "SHEET_NAMES", "CAUTIONS"]
+__all__ = ["write_plan_workbook", "write_sweep_workbook", "SHEET_NAMES", "CAUTIONS"]
 
 SHEET_NAMES = ["Summary", "Orders", "Daily plan", "Tasks", "Cage register", "Tray register",
                "Rooms", "Labour", "Costs", "Bottlenecks", "Demography"]
@@ -465,8 +465,146 @@ def _demography(wb, res):
     _print_setup(ws, landscape=False)
 
 
+def _front(wb, title: str, heading: str, rows: list[tuple[str, object, str]]):
+    """A key/value sheet put first (quote or expansion answers)."""
+    ws = wb.create_sheet(title, 0)
+    ws["A1"] = heading
+    ws["A1"].font = _TITLE
+    for j, name in enumerate(("quantity", "value", "unit"), start=1):
+        ws.cell(row=3, column=j, value=name).font = _BOLD
+    for i, (name, value, unit) in enumerate(rows, start=4):
+        ws.cell(row=i, column=1, value=name)
+        c = ws.cell(row=i, column=2, value=_cell(value) if not isinstance(value, (list, dict))
+                    else ", ".join(map(str, value)) if isinstance(value, list)
+                    else ", ".join(f"{k}: {v}" for k, v in value.items()))
+        if isinstance(value, float):
+            c.number_format = _FMT["num"]
+        elif isinstance(value, dt.date):
+            c.number_format = _FMT["date"]
+        ws.cell(row=i, column=3, value=unit)
+    _widths(ws, {1: 46, 2: 60, 3: 18})
+    _print_setup(ws, landscape=False)
+    wb.active = 0
+
+
+def _risk(wb, risk, rows: list[tuple[str, object, str]] | None = None) -> None:
+    """Fill probability by week, and the fan chart of released volume against the order."""
+    ws = wb.create_sheet("Risk", 1)
+    ws["A1"] = (f"Risk: {risk.replicates} replays of the plan with random biology "
+                f"(seed {risk.seed})")
+    ws["A1"].font = _TITLE
+    row = 3
+    for name, value, unit in rows or []:
+        ws.cell(row=row, column=1, value=name)
+        c = ws.cell(row=row, column=2, value=_cell(value))
+        if isinstance(value, float):
+            c.number_format = _FMT["num"]
+        ws.cell(row=row, column=3, value=unit)
+        row += 1
+    row += 1
+    t = risk.weekly_table()
+    weeks = t[t["customer"] == "all"].copy()
+    fan = pd.DataFrame({
+        "week": weeks["week"].to_numpy(), "ordered": weeks["ordered"].to_numpy(),
+        "planned": weeks["planned"].to_numpy(),
+        "fill_probability": weeks["fill_probability"].to_numpy(),
+        "expected_shortfall": weeks["expected_shortfall"].to_numpy(),
+        "p5": weeks["p5"].to_numpy(), "p50": weeks["p50"].to_numpy(),
+        "p95": weeks["p95"].to_numpy(),
+        # the fan's bands, stacked: P5, then P5 to P50, then P50 to P95
+        "band_p5_p50": (weeks["p50"] - weeks["p5"]).to_numpy(),
+        "band_p50_p95": (weeks["p95"] - weeks["p50"]).to_numpy()})
+    units = {c: "million" for c in fan.columns} | {"week": "", "fill_probability": "-"}
+    ws.cell(row=row, column=1, value="All customers by week").font = _BOLD
+    head = row + 1
+    end = _table(ws, fan, head, units)
+    cols = list(fan.columns)
+    area = AreaChart()
+    area.grouping = "stacked"
+    area.title = "Released volume (P5, P50, P95 fan) against the order"
+    area.y_axis.title = "million"
+    area.x_axis.title = "plan week"
+    for name in ("p5", "band_p5_p50", "band_p50_p95"):
+        j = cols.index(name) + 1
+        area.add_data(Reference(ws, min_col=j, min_row=head, max_row=end - 1),
+                      titles_from_data=True)
+    area.set_categories(Reference(ws, min_col=1, min_row=head + 1, max_row=end - 1))
+    area.series[0].graphicalProperties.noFill = True
+    area.series[0].graphicalProperties.line.noFill = True
+    line = LineChart()
+    j = cols.index("ordered") + 1
+    line.add_data(Reference(ws, min_col=j, min_row=head, max_row=end - 1), titles_from_data=True)
+    area += line
+    area.height, area.width = 10, 24
+    ws.add_chart(area, f"L{head}")
+    bars = BarChart()
+    bars.type = "col"
+    bars.title = "Chance of filling the week's orders"
+    bars.y_axis.title = "probability"
+    bars.y_axis.scaling.min, bars.y_axis.scaling.max = 0, 1
+    j = cols.index("fill_probability") + 1
+    bars.add_data(Reference(ws, min_col=j, min_row=head, max_row=end - 1), titles_from_data=True)
+    bars.set_categories(Reference(ws, min_col=1, min_row=head + 1, max_row=end - 1))
+    bars.height, bars.width = 8, 24
+    ws.add_chart(bars, f"L{head + 22}")
+    row = end + 1
+    ws.cell(row=row, column=1, value="By week and customer (pro rata within the week)").font = _BOLD
+    per = t[t["customer"] != "all"].drop(columns=["planned"])
+    _table(ws, per, row + 1, {c: "million" for c in per.columns} |
+           {"week": "", "customer": "", "fill_probability": "-"})
+    _widths(ws, default=14)
+    _print_setup(ws, landscape=True)
+
+
+def write_sweep_workbook(table: pd.DataFrame, path: str | Path, currency: str,
+                         heading: str) -> Path:
+    """The expansion sweep: options bought and cost per million by target, with a chart."""
+    path = Path(path)
+    if path.suffix.lower() != ".xlsx":
+        raise InputError("the workbook must be an .xlsx file", source=str(path))
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Sweep"
+    ws["A1"] = heading
+    ws["A1"].font = _TITLE
+    units = {"target": "million/week", "total_cost": currency, "expansion_cost": currency,
+             "cost_per_million": f"{currency}/million", "delivered_million": "million",
+             "shortfall_million": "million", "seconds": "s"}
+    units.update({c: "units" for c in table.columns if c.startswith("bought: ")})
+    end = _table(ws, table, 3, units)
+    chart = LineChart()
+    chart.title = "Cost per million by target volume"
+    chart.y_axis.title = f"{currency} per million"
+    chart.x_axis.title = "target [million/week]"
+    j = list(table.columns).index("cost_per_million") + 1
+    chart.add_data(Reference(ws, min_col=j, min_row=3, max_row=end - 1), titles_from_data=True)
+    chart.set_categories(Reference(ws, min_col=1, min_row=4, max_row=end - 1))
+    chart.height, chart.width = 9, 20
+    ws.add_chart(chart, f"A{end + 2}")
+    bars = BarChart()
+    bars.type = "col"
+    bars.grouping = "stacked"
+    bars.overlap = 100
+    bars.title = "Options bought by target volume"
+    bars.y_axis.title = "units"
+    for c in [c for c in table.columns if c.startswith("bought: ")]:
+        k = list(table.columns).index(c) + 1
+        bars.add_data(Reference(ws, min_col=k, min_row=3, max_row=end - 1), titles_from_data=True)
+    bars.set_categories(Reference(ws, min_col=1, min_row=4, max_row=end - 1))
+    bars.height, bars.width = 9, 20
+    ws.add_chart(bars, f"L{end + 2}")
+    _widths(ws, default=16)
+    _print_setup(ws, "3:3")
+    wb.properties.creator = "Broodline"
+    wb.properties.created = _STAMP
+    wb.properties.modified = _STAMP
+    return save_workbook(wb, path)
+
+
 def write_plan_workbook(res, path: str | Path, *, schedule=None,
-                        scenario_file: str | None = None) -> Path:
+                        scenario_file: str | None = None,
+                        front: tuple[str, str, list] | None = None,
+                        risk=None, risk_rows: list | None = None) -> Path:
     """Write the plan workbook atomically; returns its path.
 
     Parameters
@@ -475,6 +613,11 @@ def write_plan_workbook(res, path: str | Path, *, schedule=None,
         A solved horizon plan (with a plan: status optimal or feasible).
     path : str or Path
         The ``.xlsx`` file; an existing file is replaced only when the new one is complete.
+    front : (sheet name, heading, rows), optional
+        A sheet of (quantity, value, unit) rows put first (a quote's or expansion's answer).
+    risk : RiskResult, optional
+        Adds the Risk sheet (fill probability by week, fan chart), headed by ``risk_rows``
+        (quantity, value, unit).
     """
     path = Path(path)
     if path.suffix.lower() != ".xlsx":
@@ -498,6 +641,10 @@ def write_plan_workbook(res, path: str | Path, *, schedule=None,
     _costs(wb, res)
     _bottlenecks(wb, res)
     _demography(wb, res)
+    if risk is not None:
+        _risk(wb, risk, risk_rows)
+    if front is not None:
+        _front(wb, *front)
     wb.properties.creator = "Broodline"
     wb.properties.created = _STAMP
     wb.properties.modified = _STAMP

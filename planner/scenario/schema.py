@@ -26,7 +26,7 @@ from pydantic import (BaseModel, BeforeValidator, ConfigDict, Field, field_valid
 from planner.scenario.units import parse_quantity
 
 __all__ = [
-    "WEEKDAYS", "TASKS", "Weekly", "InlineLifeTable", "Stages", "Rearing", "ColonyModel",
+    "WEEKDAYS", "TASKS", "Weekly", "InlineLifeTable", "Stages", "Rearing", "Variation", "ColonyModel",
     "AdultRoom", "LarvalRoom", "Facility", "Kitchen", "Crew", "LabourStandards", "Costs",
     "Calendar", "Order", "StartCages", "StartTrays", "StartState", "ExpansionOption",
     "PlanSettings", "Scenario", "Q",
@@ -188,6 +188,21 @@ class Rearing(_Model):
         return sorted(v)
 
 
+class Variation(_Model):
+    """How much the biology varies around the life table's means (for the risk replay).
+
+    A seeding batch is the trays seeded on one day from one day's eggs."""
+
+    hatch_cv: Q("-", "coefficient of variation of egg hatch between seeding batches "
+                     "(beta-distributed around the life table's hatch)", ge=0) = 0.08
+    larval_cv: Q("-", "coefficient of variation of larval survival between seeding batches "
+                      "(beta-distributed around the life table's)", ge=0) = 0.12
+    fecundity_cv: Q("-", "coefficient of variation of eggs per female between cages "
+                         "(gamma-distributed, mean 1)", ge=0) = 0.25
+    tray_loss: Q("-", "chance that a seeded tray is lost whole (contamination)", ge=0,
+                 lt=1) = 0.01
+
+
 class ColonyModel(_Model):
     """A colony model: one strain, its life table and how it is reared."""
 
@@ -203,6 +218,8 @@ class ColonyModel(_Model):
     female_fraction: Q("-", "share of eggs and adults that are female", gt=0, le=1)
     stages: Stages
     rearing: Rearing
+    variation: Variation = Field(default_factory=Variation,
+                                 description="variation around the means (risk replay)")
 
     @model_validator(mode="after")
     def _ages_fit(self):

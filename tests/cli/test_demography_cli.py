@@ -1,7 +1,6 @@
 """The demographic commands: JSON keys, human tables, and bad input without tracebacks."""
 
 import json
-import math
 
 import numpy as np
 import pytest

@@ -1,6 +1,5 @@
 """How plans respond to the facility: crew hours, and orders beyond its capacity."""
 
-import datetime as dt
 
 import pytest
 

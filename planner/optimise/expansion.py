@@ -1,0 +1,215 @@
+"""Growing the plant: the least-cost set of expansion options that meets a target volume,
+and the cost curve over a range of targets.
+
+The scenario's expansion options are integer decisions of the same programme (each adds
+cage slots, rack slots, diet kg per day or crew hours per day from its ready date, at a
+weekly cost). A target is a total weekly volume from a date: the book's orders are
+topped up to it by a 'growth target' order whose unmet millions cost far more than any
+option, so options are bought whenever they let the target be met; what cannot be met
+even with every option is reported as shortfall.
+
+A sweep solves one target per volume, in parallel on local processes or on a Dask
+cluster; each task receives parameters, builds and solves inside, and returns a plain
+dict, so the table is the same either way.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import os
+import sys
+import time
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass
+
+import pandas as pd
+
+from planner.errors import InputError
+from planner.optimise.build import build_model
+from planner.optimise.data import compile_horizon
+from planner.optimise.results import PlanResult, read_back
+from planner.optimise.solve import SolveSettings, solve
+from planner.optimise.standard_week import start_batches
+from planner.scenario.schema import Order, Scenario
+
+__all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "TARGET_PRICE"]
+
+TARGET_CUSTOMER = "growth target"
+#: Price of an unmet million of the target [currency]: above any option's cost.
+TARGET_PRICE = 1e7
+
+
+@dataclass
+class ExpansionResult:
+    """The options bought for a target and the plan that uses them."""
+
+    target: float
+    from_week: int
+    plan: PlanResult
+    bought: dict[str, int]
+    expansion_cost: float
+    total_cost: float
+    delivered: float
+    shortfall: float
+    seconds: float
+
+    @property
+    def cost_per_million(self) -> float | None:
+        return self.total_cost / self.delivered if self.delivered > 1e-9 else None
+
+    def summary(self) -> dict:
+        return {"target": self.target, "from_week": self.from_week,
+                "from_date": self.plan.data.date(7 * (self.from_week - 1)),
+                "bought": self.bought, "expansion_cost": self.expansion_cost,
+                "total_cost": self.total_cost, "cost_per_million": self.cost_per_million,
+                "delivered_million": self.delivered, "shortfall_million": self.shortfall,
+                "meets_target": self.shortfall <= 1e-3, "status": self.plan.info.status,
+                "time_limited": self.plan.info.time_limited,
+                "currency": self.plan.scenario.costs.currency, "seconds": self.seconds}
+
+
+def _top_up(scn: Scenario, target: float, from_week: int, weeks: int) -> list[Order]:
+    """Orders that bring the book up to ``target`` [million/week] from ``from_week``."""
+    book = scn.weekly_orders(weeks)
+    per_week = [sum(v[w] for v in book.values()) for w in range(weeks)]
+    out = []
+    for w in range(from_week, weeks + 1):
+        extra = target - per_week[w - 1]
+        if extra > 1e-9:
+            out.append(Order(customer=TARGET_CUSTOMER, weekly_volume=extra, first_week=w,
+                             last_week=w))
+    return out
+
+
+def expand(scn: Scenario, target: float, from_week: int | None = None,
+           settings: SolveSettings | None = None, start=None) -> ExpansionResult:
+    """Least-cost options and plan that deliver ``target`` [million/week] in every week
+    from ``from_week`` (default: the first week the lead time allows) to the horizon's
+    end and through the look-ahead."""
+    from planner.optimise import settings_for
+    from planner.optimise.quote import default_start_week
+    if not scn.expansion:
+        raise InputError("the scenario lists no expansion options; add [[expansion]] entries",
+                         place="expansion")
+    t0 = time.perf_counter()
+    settings = settings or settings_for(scn)
+    start = start or start_batches(scn, dataclasses.replace(settings, log_path=None))
+    week = from_week or default_start_week(scn)
+    probe = compile_horizon(scn, start)
+    extra = _top_up(scn, target, week, probe.n_weeks)
+    data = compile_horizon(scn, start, extra_orders=extra, use_expansion=True)
+    if TARGET_CUSTOMER in data.customers:
+        data.shortfall_price[data.customers.index(TARGET_CUSTOMER)] = TARGET_PRICE
+    built = build_model(data)
+    res = read_back(built, solve(built.model, settings))
+    if not res.info.has_plan:
+        return ExpansionResult(target, week, res, {}, math.nan, math.nan, 0.0, math.nan,
+                               time.perf_counter() - t0)
+    units = res.built.blocks["buy"].values(res.solution.x)
+    bought = {opt.name: int(round(u)) for opt, u in zip(data.options, units)}
+    c = res.costs
+    horizon = c["period"] == "horizon"
+    exp_cost = float(c.loc[horizon & c["term"].str.startswith("expansion"), "cost"].sum())
+    total = float(c.loc[horizon & (c["term"] != "shortfall"), "cost"].sum())
+    w = res.weekly
+    return ExpansionResult(target=target, from_week=week, plan=res, bought=bought,
+                           expansion_cost=exp_cost, total_cost=total,
+                           delivered=float(w["released"].sum()),
+                           shortfall=float(w["shortfall"].sum()),
+                           seconds=time.perf_counter() - t0)
+
+
+def _task(params: dict) -> dict:
+    """One sweep point, self-contained for a worker process: parameters in, plain dict out."""
+    scn = params["scenario"]
+    settings = SolveSettings(**params["settings"])
+    res = expand(scn, params["target"], params["from_week"], settings)
+    s = res.summary()
+    row = {"target": params["target"], "status": s["status"],
+           "time_limited": s["time_limited"], "total_cost": s["total_cost"],
+           "expansion_cost": s["expansion_cost"], "cost_per_million": s["cost_per_million"],
+           "delivered_million": s["delivered_million"],
+           "shortfall_million": s["shortfall_million"], "meets_target": s["meets_target"],
+           "seconds": s["seconds"]}
+    row.update({f"bought: {k}": v for k, v in res.bought.items()})
+    return row
+
+
+def sweep(scn: Scenario, volumes: list[float], from_week: int | None = None,
+          settings: SolveSettings | None = None, workers: int | None = None,
+          scheduler: str | None = None,
+          progress: Callable[[int, int], None] | None = None) -> pd.DataFrame:
+    """Expansion for each target volume: options bought and cost per million.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Local worker processes (default: the CPUs); 1 runs in this process.
+    scheduler : str, optional
+        Address of a Dask scheduler (``tcp://host:8786``), or a ``distributed.Client``;
+        needs the ``cluster`` extra.
+    progress : callable(done, total), optional
+        Called as solves finish.
+    """
+    from planner.optimise import settings_for
+    settings = settings or settings_for(scn)
+    task_settings = dataclasses.asdict(dataclasses.replace(settings, log_path=None, threads=1))
+    params = [{"scenario": scn, "target": float(v), "from_week": from_week,
+               "settings": task_settings} for v in volumes]
+    rows: list[dict] = []
+    total = len(params)
+
+    def done(k):
+        if progress:
+            progress(k, total)
+
+    if scheduler is not None:
+        rows = _dask_map(params, scheduler, done)
+    elif (workers or os.cpu_count() or 1) <= 1 or total == 1:
+        for i, p in enumerate(params, 1):
+            rows.append(_task(p))
+            done(i)
+    else:
+        with ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, total)) as ex:
+            futures = [ex.submit(_task, p) for p in params]
+            for i, _ in enumerate(as_completed(futures), 1):
+                done(i)
+            rows = [f.result() for f in futures]
+    df = pd.DataFrame(rows).sort_values("target").reset_index(drop=True)
+    bought_cols = [c for c in df.columns if c.startswith("bought: ")]
+    df[bought_cols] = df[bought_cols].fillna(0).astype(int)
+    return df
+
+
+def _dask_map(params, scheduler, done) -> list[dict]:
+    try:
+        from distributed import Client, as_completed as dask_completed
+    except ImportError:
+        raise InputError("a Dask scheduler needs the cluster extra: pip install "
+                         "'broodline[cluster]'", place="--scheduler") from None
+    own = not hasattr(scheduler, "submit")
+    client = Client(scheduler) if own else scheduler
+    try:
+        futures = client.map(_task, params, pure=False)
+        for i, _ in enumerate(dask_completed(futures), 1):
+            done(i)
+        return client.gather(futures)
+    finally:
+        if own:
+            client.close()
+
+
+def progress_bar(stream=None) -> Callable[[int, int], None]:
+    """A one-line progress bar of solves done, on stderr."""
+    stream = stream or sys.stderr
+
+    def show(done: int, total: int) -> None:
+        width = 30
+        filled = int(width * done / max(total, 1))
+        stream.write(f"\rsolves done {done:>3}/{total} [{'#' * filled}{'.' * (width - filled)}]")
+        if done == total:
+            stream.write("\n")
+        stream.flush()
+    return show

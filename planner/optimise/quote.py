@@ -1,0 +1,424 @@
+"""Answering a customer: can we take this weekly order, at what cost, from when?
+
+The quote adds the order to the book and uses the same programme (no second model).
+
+- **Can it be taken?** The programme is solved for the least unmet volume of the quoted
+  order (the orders already in the book weighted a thousand times more); whatever a
+  booked order would lose against the plan without the quote counts as unmet too (a
+  quote never takes pupae from a customer already promised). Its LP relaxation answers
+  "no" at once when even fractional cages and trays fall short; otherwise the MILP
+  looks for a whole plan with no shortfall. A plan it cannot find within its time
+  limit counts as "no".
+- **From when must the ramp-up begin?** The latest day T such that the plan without the
+  order can be kept unchanged on every day before T (its cages and trays fixed) and the
+  order still be filled: bisection on T. The plan with the order keeps the old plan
+  before T, so what changes first is read off day T. (For an order that cannot be
+  filled in full, the first day on which the least-cost plans with and without it
+  differ.)
+- **At what cost?** Both plans are solved for least cost; the extra cost is the
+  difference of their operating costs over the reported weeks (the solver gaps bound its
+  error, which is reported).
+- If the order cannot be taken in full: the largest constant weekly volume from the same
+  start (bisection on the volume) and the earliest start at which the full volume can be
+  delivered (forward steps that double, then bisection on the week), each by search over
+  solves, and the resources that stop it (the shortfall diagnosis of the full order's LP
+  relaxation). The plan, ramp-up and extra cost are then those of the largest volume that
+  can be promised.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from planner.optimise.build import build_model
+from planner.optimise.data import StartBatches, compile_horizon
+from planner.optimise.results import PlanResult, operating_cost, read_back
+from planner.optimise.solve import SolveSettings, solve
+from planner.optimise.standard_week import start_batches
+from planner.scenario.schema import Order, Scenario
+
+__all__ = ["QuoteResult", "quote", "default_start_week", "TOLERANCE"]
+
+#: A shortfall below this is no shortfall [million over the whole order].
+TOLERANCE = 1e-3
+#: While costing a quote, an unmet million of the quote costs this many times the
+#: scenario's shortfall price, and of the orders already in the book this factor squared.
+PRIORITY = 10.0
+#: Time limit of one search solve [s] (the scenario's, if shorter). A check that runs
+#: out of time without a plan that fills the order counts as "no": the search errs on
+#: the side of promising less.
+SEARCH_SECONDS = 8.0
+#: Time limit of the least-cost plan at the largest volume that can be promised [s] (the
+#: scenario's, if shorter): a plan at the edge of capacity is hard to prove cheapest, so
+#: its cost is reported with the gap it reached.
+EDGE_SECONDS = 20.0
+
+
+def default_start_week(scn: Scenario) -> int:
+    """The first plan week whose pupae can all come from eggs laid in the plan: the week
+    that starts on or after the latest harvest age [week number, 1-based]."""
+    return math.ceil(max(scn.colony.rearing.harvest_ages) / 7) + 1
+
+
+@dataclass
+class QuoteResult:
+    """The answer to a quote; money in the scenario's currency, volumes in million."""
+
+    customer: str
+    weekly_volume: float
+    start_week: int
+    weeks: int
+    feasible: bool
+    baseline: PlanResult
+    with_order: PlanResult
+    extra_cost_total: float
+    extra_cost_per_week: float | None
+    cost_per_million: float | None
+    cost_uncertainty: float
+    delivered: float
+    shortfall: float
+    ramp_up_start: object | None
+    first_changes: list[str]
+    max_weekly_volume: float | None = None
+    earliest_full_start: int | None = None
+    limiting_resources: list[str] = field(default_factory=list)
+    promised_volume: float | None = None
+    solves: int = 0
+    seconds: float = 0.0
+
+    def week_date(self, week: int | None):
+        if week is None:
+            return None
+        return self.baseline.data.date(7 * (week - 1))
+
+    def summary(self) -> dict:
+        return {
+            "customer": self.customer, "weekly_volume": self.weekly_volume,
+            "start_week": self.start_week, "start_date": self.week_date(self.start_week),
+            "weeks": self.weeks, "feasible": self.feasible,
+            "extra_cost_total": self.extra_cost_total,
+            "extra_cost_per_week": self.extra_cost_per_week,
+            "cost_per_million": self.cost_per_million,
+            "cost_uncertainty": self.cost_uncertainty,
+            "delivered_million": self.delivered, "shortfall_million": self.shortfall,
+            "ramp_up_start": self.ramp_up_start, "first_changes": self.first_changes,
+            "max_weekly_volume": self.max_weekly_volume,
+            "earliest_full_start": self.earliest_full_start,
+            "earliest_full_start_date": self.week_date(self.earliest_full_start),
+            "limiting_resources": self.limiting_resources,
+            "plan_volume": self.promised_volume,
+            "status": self.with_order.info.status,
+            "time_limited": self.with_order.info.time_limited
+                            or self.baseline.info.time_limited,
+            "currency": self.baseline.scenario.costs.currency,
+            "solves": self.solves, "seconds": self.seconds,
+        }
+
+
+class _Quoter:
+    """Builds and solves the quote's programmes, counting the solves."""
+
+    def __init__(self, scn: Scenario, settings: SolveSettings, start: StartBatches,
+                 customer: str, weeks: int):
+        self.scn = scn
+        self.settings = settings
+        self.start = start
+        self.customer = customer
+        self.weeks = weeks
+        self.solves = 0
+        #: the whole plan of the last MILP check that filled the order (None if it did not)
+        self.last_plan: np.ndarray | None = None
+        #: the plan without the order's shortfall of each book order and week [million]:
+        #: a plan with the quote may not fall shorter of them
+        self.book_shortfall: dict[tuple, float] = {}
+        #: time limit of one MILP check [s]
+        self.search_seconds = SEARCH_SECONDS
+
+    def keep_book(self, base: PlanResult) -> None:
+        """Remember the plan without the quote: its shortfalls, and its solve time (a
+        check may take twice as long, at least :data:`SEARCH_SECONDS`)."""
+        short = base.built.blocks["shortfall"]
+        self.book_shortfall = dict(zip(short.labels, short.values(base.solution.x)))
+        self.search_seconds = max(SEARCH_SECONDS, 2.0 * base.info.seconds)
+
+    def _unmet(self, short, x: np.ndarray, quoted: np.ndarray) -> float:
+        """The quote's unmet volume plus whatever the book loses against the plan without
+        the quote [million]: a plan that robs a booked order does not fill the quote."""
+        vals = short.values(x)
+        robbed = sum(max(v - self.book_shortfall.get(lab, 0.0), 0.0)
+                     for lab, v, q in zip(short.labels, vals, quoted) if not q)
+        return float(vals[quoted].sum()) + robbed
+
+    def order(self, volume: float, start_week: int) -> Order:
+        return Order(customer=self.customer, weekly_volume=volume, first_week=start_week,
+                     last_week=start_week + self.weeks - 1)
+
+    def horizon_for(self, start_week: int) -> int:
+        return max(self.scn.plan.horizon_weeks, start_week + self.weeks - 1)
+
+    def data(self, volume: float | None, start_week: int):
+        horizon = self.horizon_for(start_week)
+        orders = [self.order(volume, start_week)] if volume else None
+        data = compile_horizon(self.scn, self.start, horizon_weeks=horizon, extra_orders=orders)
+        quoted = np.array([c == self.customer for c in data.customers])
+        # the book first, then the quote, then cost
+        data.shortfall_price[~quoted] *= PRIORITY * PRIORITY
+        data.shortfall_price[quoted] *= PRIORITY
+        return data
+
+    @staticmethod
+    def _fix(built, reference: PlanResult | None, before_day: int) -> None:
+        """Fix cages and trays on days before ``before_day`` to the reference plan's."""
+        if reference is None or before_day <= 0:
+            return
+        ref_b = reference.built.blocks
+        for name in ("cages", "trays"):
+            blk, rblk = built.blocks[name], ref_b[name]
+            ref_vals = dict(zip(rblk.labels, rblk.values(reference.solution.x)))
+            for i, lab in enumerate(blk.labels):
+                if lab[0] < before_day and lab in ref_vals:
+                    blk.lb[i] = blk.ub[i] = ref_vals[lab]
+
+    def cost_plan(self, volume: float | None, start_week: int,
+                  reference: PlanResult | None = None, before_day: int = 0,
+                  relax: bool = False, time_limit: float | None = None,
+                  promise: np.ndarray | None = None) -> PlanResult:
+        """Least-cost plan. ``promise``: a whole plan of the same programme (from the
+        search) that fills the order; the plan then may not fall shorter of the quoted
+        order in any week than it does, and the solver starts from it."""
+        built = build_model(self.data(volume, start_week), relax=relax)
+        self._fix(built, reference, before_day)
+        if promise is not None:
+            short = built.blocks["shortfall"]
+            short.ub[:] = np.maximum(short.values(promise), 0.0) + 1e-9
+        self.solves += 1
+        settings = self.settings
+        if time_limit is not None:
+            settings = dataclasses.replace(settings, time_limit=min(settings.time_limit,
+                                                                    time_limit))
+        return read_back(built, solve(built.model, settings, initial=promise))
+
+    def unmet(self, volume: float, start_week: int, reference: PlanResult | None = None,
+              before_day: int = 0, lp_only: bool = False) -> float:
+        """Least unmet volume of the quoted order [million]: the LP relaxation first (if
+        even it falls short, that is the answer), then the MILP (time-limited; inf when
+        no plan was found)."""
+        self.last_plan = None
+        data = self.data(volume, start_week)
+        built = build_model(data)
+        self._fix(built, reference, before_day)
+        m = built.model
+        short = m.blocks["shortfall"]
+        quoted = np.array([lab[0] == self.customer for lab in short.labels])
+        integers = [b.integer for b in m.blocks.values()]
+        weights = np.where(quoted, 1.0, 1000.0)
+        m.cost_terms = {"unmet": (short.offset + np.arange(short.size), weights)}
+        m.c0 = 0.0
+        for b in m.blocks.values():
+            b.integer = False
+        self.solves += 1
+        lp = solve(m, SolveSettings(solver=self.settings.solver,
+                                    time_limit=self.settings.time_limit, relative_gap=0.0,
+                                    threads=self.settings.threads, duals=False,
+                                    strategy="direct"))
+        for b, was in zip(m.blocks.values(), integers):
+            b.integer = was
+        if not lp.info.has_plan:
+            return math.inf
+        lp_short = self._unmet(short, lp.x, quoted)
+        if lp_short > TOLERANCE or lp_only:
+            return lp_short
+        self.solves += 1
+        sol = solve(m, dataclasses.replace(self.settings, log_path=None, duals=False,
+                                           relative_gap=1e-6, absolute_gap=TOLERANCE / 2,
+                                           time_limit=min(self.settings.time_limit,
+                                                          self.search_seconds)))
+        if not sol.info.has_plan:
+            return math.inf
+        unmet = self._unmet(short, sol.x, quoted)
+        if unmet <= TOLERANCE:
+            self.last_plan = sol.x
+        return unmet
+
+    def feasible(self, volume: float, start_week: int, **fix) -> bool:
+        return self.unmet(volume, start_week, **fix) <= TOLERANCE
+
+
+def _first_changes(base: PlanResult, new: PlanResult, from_day: int, window: int = 7):
+    """The first day the plans differ, and what differs over the week from that day (the
+    plan is re-optimised from then on, so single days differ more than the week does)."""
+    a, b = base.horizon_daily, new.horizon_daily
+    n = min(len(a), len(b))
+    first = None
+    for t in range(max(from_day, 0), n):
+        if any(abs(float(b[c].iloc[t] - a[c].iloc[t])) >= 0.5
+               for c in ("cages_loaded", "trays_seeded")):
+            first = t
+            break
+    if first is None:
+        return None, []
+    changes = []
+    hi = min(first + window, n)
+    for col, what in (("cages_loaded", "cages loaded"), ("trays_seeded", "trays seeded")):
+        d = float(b[col].iloc[first:hi].sum() - a[col].iloc[first:hi].sum())
+        if abs(d) >= 0.5:
+            changes.append(f"{abs(d):.0f} {'more' if d > 0 else 'fewer'} {what} in the "
+                           f"{hi - first} days from {new.data.date(first)}")
+    return new.data.date(first), changes
+
+
+def _ramp_day(q: _Quoter, volume: float, start_week: int,
+              base: PlanResult) -> tuple[int, np.ndarray | None]:
+    """Latest day before which the plan without the order can be kept: bisection with the
+    LP relaxation, then the MILP at that day, backing off (2, 4, 8 ... days earlier)
+    until a whole plan fills the order. Returns the day and that whole plan (None for
+    day 0 when no check found one)."""
+    lo, hi = 0, 7 * (start_week - 1) + 7
+    if q.unmet(volume, start_week, reference=base, before_day=hi, lp_only=True) <= TOLERANCE:
+        lo = hi
+    else:
+        while hi - lo > 1:
+            mid = (lo + hi) // 2
+            if q.unmet(volume, start_week, reference=base, before_day=mid,
+                       lp_only=True) <= TOLERANCE:
+                lo = mid
+            else:
+                hi = mid
+    back = 0
+    while True:
+        day = max(lo - back, 0)
+        if q.unmet(volume, start_week, reference=base, before_day=day) <= TOLERANCE:
+            return day, q.last_plan
+        if day == 0:
+            return 0, None
+        back = 2 if back == 0 else 2 * back
+
+
+def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | None = None,
+          customer: str = "Quote", settings: SolveSettings | None = None,
+          search: bool = True) -> QuoteResult:
+    """Quote a constant weekly order.
+
+    Parameters
+    ----------
+    weekly_volume : float
+        Product per week [million/week].
+    weeks : int
+        How many weeks the order runs [weeks].
+    start_week : int, optional
+        First plan week of the order (default :func:`default_start_week`).
+    customer : str
+        Name of the customer (shown as '<name> (quote)' in the plan).
+    search : bool
+        If the order cannot be taken in full, search the largest volume and the earliest
+        full start.
+    """
+    from planner.optimise import settings_for
+    t0 = time.perf_counter()
+    settings = settings or settings_for(scn)
+    start = start_batches(scn, dataclasses.replace(settings, log_path=None))
+    name = f"{customer} (quote)"
+    q = _Quoter(scn, settings, start, name, weeks)
+    first = start_week or default_start_week(scn)
+    base = q.cost_plan(None, first)
+    q.keep_book(base)
+    least = q.unmet(weekly_volume, first)
+    feasible = least <= TOLERANCE
+    limiting: list[str] = []
+    max_volume = earliest = None
+    promised = weekly_volume
+    if not feasible:
+        # what stops it: the shortfall diagnosis of the full order's LP relaxation
+        relaxed = q.cost_plan(weekly_volume, first, relax=True)
+        limiting = _limiting(relaxed, name)
+        if search:
+            max_volume = _max_volume(q, weekly_volume, first)
+            earliest = _earliest_start(q, weekly_volume, first)
+            promised = max_volume
+    new, ramp = base, None
+    if promised > 0:
+        ramp, filled = _ramp_day(q, promised, first, base)
+        limit = None if feasible else EDGE_SECONDS
+        new = q.cost_plan(promised, first, reference=base, before_day=ramp,
+                          time_limit=limit, promise=filled)
+        if not new.info.has_plan:  # no plan within the promise in time: price it instead
+            new = q.cost_plan(promised, first, reference=base, before_day=ramp,
+                              time_limit=limit)
+    ramp_date, changes = _first_changes(base, new, ramp or 0)
+    short = float(new.weekly.loc[new.weekly["customer"] == name, "shortfall"].sum())
+    delivered = float(new.weekly.loc[new.weekly["customer"] == name, "released"].sum())
+    in_horizon = min(weeks, max(0, scn.plan.horizon_weeks - first + 1))
+    extra = operating_cost(new) - operating_cost(base)
+    noise = sum((r.info.gap or 0.0) * abs(r.info.objective or 0.0) for r in {id(base): base,
+                                                                              id(new): new}.values())
+    res = QuoteResult(
+        customer=customer, weekly_volume=weekly_volume, start_week=first, weeks=weeks,
+        feasible=feasible and short <= TOLERANCE, baseline=base, with_order=new,
+        extra_cost_total=extra,
+        extra_cost_per_week=extra / in_horizon if in_horizon else None,
+        cost_per_million=extra / delivered if delivered > 1e-9 else None,
+        cost_uncertainty=noise, delivered=delivered, shortfall=short,
+        ramp_up_start=ramp_date or (new.data.date(ramp) if ramp is not None else None),
+        first_changes=changes, max_weekly_volume=max_volume, earliest_full_start=earliest,
+        limiting_resources=limiting, promised_volume=promised)
+    res.solves = q.solves
+    res.seconds = time.perf_counter() - t0
+    return res
+
+
+def _limiting(res: PlanResult, customer: str) -> list[str]:
+    """Resources full in the days that feed the weeks where the quoted order is short,
+    most often full first."""
+    count: dict[str, int] = {}
+    for s in res.shortfalls:
+        if s["customer"] != customer:
+            continue
+        for item in s["saturated"]:
+            count[item["resource"]] = count.get(item["resource"], 0) + item["days_full"]
+    if not count and any(s["customer"] == customer for s in res.shortfalls):
+        return ["eggs: the cages cannot lay enough in time"]
+    return [r for r, _ in sorted(count.items(), key=lambda kv: -kv[1])]
+
+
+def _max_volume(q: _Quoter, full: float, start_week: int, rel_tol: float = 0.005) -> float:
+    """Largest constant weekly volume [million/week] that can be promised from the start
+    (bisection to ``rel_tol`` of the volume)."""
+    lo, hi = 0.0, full
+    while hi - lo > rel_tol * hi:
+        mid = 0.5 * (lo + hi)
+        if q.feasible(mid, start_week):
+            lo = mid
+        else:
+            hi = mid
+    return lo
+
+
+def _earliest_start(q: _Quoter, volume: float, first: int) -> int | None:
+    """Earliest plan week, within the scenario's horizon, from which the full volume can be
+    delivered (None: no start within the horizon)."""
+    limit = q.scn.plan.horizon_weeks
+    last_bad, step, week = first, 1, first + 1
+    good = None
+    while week <= limit:
+        if q.feasible(volume, week):
+            good = week
+            break
+        last_bad = week
+        step *= 2
+        week = min(first + step, limit) if first + step > limit and week < limit else \
+            first + step
+    if good is None:
+        return None
+    lo, hi = last_bad, good
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if q.feasible(volume, mid):
+            hi = mid
+        else:
+            lo = mid
+    return hi

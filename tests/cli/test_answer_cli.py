@@ -1,0 +1,60 @@
+"""`broodline quote`, `capacity`, `expand` and `risk` from the command line: JSON keys,
+workbooks, and one-line errors with exit code 2."""
+
+import json
+
+import openpyxl
+import pytest
+
+from planner.cli import risk_cmds
+from planner.cli.answer_cmds import parse_sweep
+from planner.cli.main import main
+from planner.scenario import demo_scenario_path
+
+FLY = str(demo_scenario_path("fly"))
+
+
+def test_capacity_json(capsys):
+    assert main(["capacity", FLY, "--json", "--quiet"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["max_weekly_volume"] > 0
+    assert {"resource", "binding_volume", "shadow_price", "shadow_unit"} <= set(d["resources"][0])
+    assert d["limiting_resource"] == min(d["resources"], key=lambda r: r["binding_volume"])[
+        "resource"]
+
+
+@pytest.mark.parametrize("argv, needle", [
+    (["quote", FLY, "--weekly", "-3", "--weeks", "4"], "positive"),
+    (["quote", FLY, "--weekly", "2", "--weeks", "0"], "at least one week"),
+    (["quote", FLY, "--weekly", "2", "--weeks", "4", "--start", "2020-01-06"],
+     "before the plan starts"),
+    (["expand", FLY], "--target"),
+    (["expand", FLY, "--sweep", "20:10:1"], "LOW <= HIGH"),
+    (["risk", FLY, "--target-fill", "1.5"], "between 0 and 1"),
+    (["risk", FLY, "--replicates", "0"], "at least 1"),
+])
+def test_bad_answers_input_is_one_line_exit_2(argv, needle, capsys):
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and needle in err[0] and "Traceback" not in err[0]
+
+
+def test_parse_sweep_includes_the_high_end():
+    assert parse_sweep("12:14:0.5") == [12.0, 12.5, 13.0, 13.5, 14.0]
+
+
+def test_risk_json_and_workbook(tmp_path, monkeypatch, fly_plan, capsys):
+    monkeypatch.setattr(risk_cmds, "plan_horizon", lambda scn, settings: fly_plan)
+    out = tmp_path / "risk.xlsx"
+    code = main(["risk", FLY, "--replicates", "300", "--seed", "5", "--json", "-o", str(out)])
+    text, err = capsys.readouterr()
+    assert code == 0, err
+    d = json.loads(text)["risk"]
+    assert d["replicates"] == 300 and d["seed"] == 5
+    assert 0 <= d["worst_week_fill_probability"] <= 1
+    weeks = [w for w in d["weeks"] if w["customer"] == "all"]
+    assert len(weeks) == fly_plan.data.report_weeks
+    assert all(w["p5"] <= w["p50"] <= w["p95"] for w in weeks)
+    wb = openpyxl.load_workbook(out)
+    assert wb.sheetnames[1] == "Risk"
+    assert len(wb["Risk"]._charts) == 2
