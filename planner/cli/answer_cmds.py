@@ -133,8 +133,11 @@ def quote_text(q, cur: str) -> str:
         lines.append(f"No: {num(q.weekly_volume)} million/week for {q.weeks} weeks from {start} "
                      "cannot be taken in full.")
         if s["max_weekly_volume"] is not None:
+            bound = s.get("max_weekly_volume_bound")
             lines.append(f"  The largest constant volume that can be promised from {start}: "
-                         f"{num(s['max_weekly_volume'])} million/week.")
+                         f"{num(s['max_weekly_volume'])} million/week (a whole plan fills it"
+                         + (f"; no more than {num(bound)} even with fractional cages and "
+                            "trays)." if bound is not None else ")."))
         if s["earliest_full_start"] is not None:
             lines.append(f"  The full volume can be delivered from week {s['earliest_full_start']}"
                          f" ({s['earliest_full_start_date']}).")

@@ -19,7 +19,8 @@ The quote adds the order to the book and uses the same programme (no second mode
   difference of their operating costs over the reported weeks (the solver gaps bound its
   error, which is reported).
 - If the order cannot be taken in full: the largest constant weekly volume from the same
-  start (bisection on the volume) and the earliest start at which the full volume can be
+  start (bisection on the volume: with LP checks for an upper bound, then with whole-plan
+  checks below it; the volume promised has a whole plan, the bound is reported beside it) and the earliest start at which the full volume can be
   delivered (forward steps that double, then bisection on the week), each by search over
   solves, and the resources that stop it (the shortfall diagnosis of the full order's LP
   relaxation). The plan, ramp-up and extra cost are then those of the largest volume that
@@ -42,10 +43,13 @@ from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
 from planner.scenario.schema import Order, Scenario
 
-__all__ = ["QuoteResult", "quote", "default_start_week", "TOLERANCE"]
+__all__ = ["QuoteResult", "quote", "default_start_week", "TOLERANCE", "FILL_SHARE"]
 
-#: A shortfall below this is no shortfall [million over the whole order].
+#: A shortfall below this is no shortfall [million over the whole order] ...
 TOLERANCE = 1e-3
+#: ... nor one below this share of the whole order [-] (pupae counts are estimates far
+#: coarser than this; whole-plan checks near the edge stop sooner with it).
+FILL_SHARE = 1e-3
 #: While costing a quote, an unmet million of the quote costs this many times the
 #: scenario's shortfall price, and of the orders already in the book this factor squared.
 PRIORITY = 10.0
@@ -53,6 +57,11 @@ PRIORITY = 10.0
 #: out of time without a plan that fills the order counts as "no": the search errs on
 #: the side of promising less.
 SEARCH_SECONDS = 8.0
+#: A check that started from a filling plan of a smaller volume and stops at its time
+#: limit with less than this share of the order unmet [-] is run once more from the plan
+#: without the quote, with RETRY times the time.
+NEAR_SHARE = 0.02
+RETRY = 1.0
 #: Time limit of the least-cost plan at the largest volume that can be promised [s] (the
 #: scenario's, if shorter): a plan at the edge of capacity is hard to prove cheapest, so
 #: its cost is reported with the gap it reached.
@@ -85,6 +94,7 @@ class QuoteResult:
     ramp_up_start: object | None
     first_changes: list[str]
     max_weekly_volume: float | None = None
+    max_weekly_volume_bound: float | None = None
     earliest_full_start: int | None = None
     limiting_resources: list[str] = field(default_factory=list)
     promised_volume: float | None = None
@@ -108,6 +118,7 @@ class QuoteResult:
             "delivered_million": self.delivered, "shortfall_million": self.shortfall,
             "ramp_up_start": self.ramp_up_start, "first_changes": self.first_changes,
             "max_weekly_volume": self.max_weekly_volume,
+            "max_weekly_volume_bound": self.max_weekly_volume_bound,
             "earliest_full_start": self.earliest_full_start,
             "earliest_full_start_date": self.week_date(self.earliest_full_start),
             "limiting_resources": self.limiting_resources,
@@ -138,12 +149,17 @@ class _Quoter:
         self.book_shortfall: dict[tuple, float] = {}
         #: time limit of one MILP check [s]
         self.search_seconds = SEARCH_SECONDS
+        #: the plan without the quote (the checks' starting plan)
+        self.base: PlanResult | None = None
+        #: filling plans found, by (start week, fixed days): (volume, built, x)
+        self.filled: dict[tuple, list] = {}
 
     def keep_book(self, base: PlanResult) -> None:
         """Remember the plan without the quote: its shortfalls, and its solve time (a
         check may take twice as long, at least :data:`SEARCH_SECONDS`)."""
         short = base.built.blocks["shortfall"]
         self.book_shortfall = dict(zip(short.labels, short.values(base.solution.x)))
+        self.base = base
         self.search_seconds = max(SEARCH_SECONDS, 2.0 * base.info.seconds)
 
     def _unmet(self, short, x: np.ndarray, quoted: np.ndarray) -> float:
@@ -153,6 +169,10 @@ class _Quoter:
         robbed = sum(max(v - self.book_shortfall.get(lab, 0.0), 0.0)
                      for lab, v, q in zip(short.labels, vals, quoted) if not q)
         return float(vals[quoted].sum()) + robbed
+
+    def tolerance(self, volume: float) -> float:
+        """Unmet volume that still counts as filled [million over the order]."""
+        return max(TOLERANCE, FILL_SHARE * volume * self.weeks)
 
     def order(self, volume: float, start_week: int) -> Order:
         return Order(customer=self.customer, weekly_volume=volume, first_week=start_week,
@@ -203,12 +223,41 @@ class _Quoter:
                                                                     time_limit))
         return read_back(built, solve(built.model, settings, initial=promise))
 
+    def _start_plan(self, built, source=None) -> np.ndarray | None:
+        """A whole plan of another programme, ``(built, x)`` (default: the plan without
+        the quote), as a whole plan of this one: every variable by its label, the
+        shortfalls raised to what the orders now ask. CBC starts from it, so that a check
+        always has a plan to improve on."""
+        if source is None:
+            if self.base is None:
+                return None
+            source = (self.base.built, self.base.solution.x)
+        x0 = np.zeros(built.model.n)
+        base_blocks, xb = source[0].blocks, source[1]
+        for name, blk in built.blocks.items():
+            old = base_blocks.get(name)
+            if old is None:
+                continue
+            vals = dict(zip(old.labels, old.values(xb)))
+            x0[blk.offset:blk.offset + blk.size] = [vals.get(lab, 0.0) for lab in blk.labels]
+        ship, short = built.blocks["ship"], built.blocks["shortfall"]
+        ordered = {}
+        for fam in ("orders", "end"):
+            f = built.families.get(fam)
+            if f is not None:
+                ordered.update(zip(f.labels, f.b))
+        for i, lab in enumerate(short.labels):
+            need = ordered.get(lab, 0.0) - x0[ship.offset + i]
+            x0[short.offset + i] = max(need, 0.0)
+        return x0
+
     def unmet(self, volume: float, start_week: int, reference: PlanResult | None = None,
               before_day: int = 0, lp_only: bool = False) -> float:
         """Least unmet volume of the quoted order [million]: the LP relaxation first (if
         even it falls short, that is the answer), then the MILP (time-limited; inf when
         no plan was found)."""
         self.last_plan = None
+        key = (start_week, before_day if reference is not None else 0)
         data = self.data(volume, start_week)
         built = build_model(data)
         self._fix(built, reference, before_day)
@@ -231,22 +280,48 @@ class _Quoter:
         if not lp.info.has_plan:
             return math.inf
         lp_short = self._unmet(short, lp.x, quoted)
-        if lp_short > TOLERANCE or lp_only:
+        tol = self.tolerance(volume)
+        if lp_short > tol or lp_only:
             return lp_short
-        self.solves += 1
-        sol = solve(m, dataclasses.replace(self.settings, log_path=None, duals=False,
-                                           relative_gap=1e-6, absolute_gap=TOLERANCE / 2,
-                                           time_limit=min(self.settings.time_limit,
-                                                          self.search_seconds)))
-        if not sol.info.has_plan:
+        start = self._start_plan(built, self._nearest(key, volume))
+        unmet, sol = math.inf, None
+        for attempt in range(2):
+            seconds = self.search_seconds * (1.0 if attempt == 0 else RETRY)
+            self.solves += 1
+            sol = solve(m, dataclasses.replace(self.settings, log_path=None, duals=False,
+                                               relative_gap=1e-6, absolute_gap=tol / 2,
+                                               time_limit=min(self.settings.time_limit,
+                                                              seconds)),
+                        initial=start)
+            if not sol.info.has_plan:
+                break
+            unmet = self._unmet(short, sol.x, quoted)
+            # close to filled but stopped by the time limit: once more from the other
+            # start (the plan without the quote), where the solver takes another path
+            near = unmet <= NEAR_SHARE * volume * self.weeks
+            other = self._start_plan(built)
+            if unmet <= tol or not near or not sol.info.time_limited or attempt \
+                    or start is None or np.array_equal(start, other):
+                break
+            start = other
+        if not math.isfinite(unmet):
             return math.inf
-        unmet = self._unmet(short, sol.x, quoted)
-        if unmet <= TOLERANCE:
+        if unmet <= tol:
             self.last_plan = sol.x
+            self.filled.setdefault(key, []).append((volume, built, sol.x))
         return unmet
 
+    def _nearest(self, key, volume: float):
+        """The filling plan of the largest volume below ``volume`` found so far for the
+        same start and fixings (None: start from the plan without the quote)."""
+        below = [(v, b, x) for v, b, x in self.filled.get(key, []) if v <= volume]
+        if not below:
+            return None
+        _, b, x = max(below, key=lambda t: t[0])
+        return b, x
+
     def feasible(self, volume: float, start_week: int, **fix) -> bool:
-        return self.unmet(volume, start_week, **fix) <= TOLERANCE
+        return self.unmet(volume, start_week, **fix) <= self.tolerance(volume)
 
 
 def _first_changes(base: PlanResult, new: PlanResult, from_day: int, window: int = 7):
@@ -279,20 +354,21 @@ def _ramp_day(q: _Quoter, volume: float, start_week: int,
     until a whole plan fills the order. Returns the day and that whole plan (None for
     day 0 when no check found one)."""
     lo, hi = 0, 7 * (start_week - 1) + 7
-    if q.unmet(volume, start_week, reference=base, before_day=hi, lp_only=True) <= TOLERANCE:
+    tol = q.tolerance(volume)
+    if q.unmet(volume, start_week, reference=base, before_day=hi, lp_only=True) <= tol:
         lo = hi
     else:
         while hi - lo > 1:
             mid = (lo + hi) // 2
             if q.unmet(volume, start_week, reference=base, before_day=mid,
-                       lp_only=True) <= TOLERANCE:
+                       lp_only=True) <= tol:
                 lo = mid
             else:
                 hi = mid
     back = 0
     while True:
         day = max(lo - back, 0)
-        if q.unmet(volume, start_week, reference=base, before_day=day) <= TOLERANCE:
+        if q.unmet(volume, start_week, reference=base, before_day=day) <= tol:
             return day, q.last_plan
         if day == 0:
             return 0, None
@@ -328,16 +404,16 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
     base = q.cost_plan(None, first)
     q.keep_book(base)
     least = q.unmet(weekly_volume, first)
-    feasible = least <= TOLERANCE
+    feasible = least <= q.tolerance(weekly_volume)
     limiting: list[str] = []
-    max_volume = earliest = None
+    max_volume = max_bound = earliest = None
     promised = weekly_volume
     if not feasible:
         # what stops it: the shortfall diagnosis of the full order's LP relaxation
         relaxed = q.cost_plan(weekly_volume, first, relax=True)
         limiting = _limiting(relaxed, name)
         if search:
-            max_volume = _max_volume(q, weekly_volume, first)
+            max_volume, max_bound = _max_volume(q, weekly_volume, first)
             earliest = _earliest_start(q, weekly_volume, first)
             promised = max_volume
     new, ramp = base, None
@@ -358,13 +434,15 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
                                                                               id(new): new}.values())
     res = QuoteResult(
         customer=customer, weekly_volume=weekly_volume, start_week=first, weeks=weeks,
-        feasible=feasible and short <= TOLERANCE, baseline=base, with_order=new,
+        feasible=feasible and short <= q.tolerance(weekly_volume), baseline=base,
+        with_order=new,
         extra_cost_total=extra,
         extra_cost_per_week=extra / in_horizon if in_horizon else None,
         cost_per_million=extra / delivered if delivered > 1e-9 else None,
         cost_uncertainty=noise, delivered=delivered, shortfall=short,
         ramp_up_start=ramp_date or (new.data.date(ramp) if ramp is not None else None),
-        first_changes=changes, max_weekly_volume=max_volume, earliest_full_start=earliest,
+        first_changes=changes, max_weekly_volume=max_volume,
+        max_weekly_volume_bound=max_bound, earliest_full_start=earliest,
         limiting_resources=limiting, promised_volume=promised)
     res.solves = q.solves
     res.seconds = time.perf_counter() - t0
@@ -385,17 +463,40 @@ def _limiting(res: PlanResult, customer: str) -> list[str]:
     return [r for r, _ in sorted(count.items(), key=lambda kv: -kv[1])]
 
 
-def _max_volume(q: _Quoter, full: float, start_week: int, rel_tol: float = 0.005) -> float:
-    """Largest constant weekly volume [million/week] that can be promised from the start
-    (bisection to ``rel_tol`` of the volume)."""
+def _max_volume(q: _Quoter, full: float, start_week: int,
+                rel_tol: float = 0.005) -> tuple[float, float]:
+    """Largest constant weekly volume [million/week] that can be promised from the start,
+    and an upper bound on it. The LP relaxation's largest volume bounds it from above
+    (bisection with LP checks, cheap); below that bound, bisection with whole-plan
+    checks, each to ``rel_tol`` of the volume. The promised volume has a whole plan that
+    fills it; between it and the bound no whole plan was found within a check's time.
+    The bisection ends with a climb in steps of half ``rel_tol``, each check starting from
+    the last plan found, until a step fails."""
     lo, hi = 0.0, full
     while hi - lo > rel_tol * hi:
         mid = 0.5 * (lo + hi)
-        if q.feasible(mid, start_week):
+        if q.unmet(mid, start_week, lp_only=True) <= q.tolerance(mid):
             lo = mid
         else:
             hi = mid
-    return lo
+    upper = hi
+    if lo > 0 and q.feasible(lo, start_week):
+        return lo, upper
+    top, lo = lo, 0.0
+    while top - lo > rel_tol * top:
+        mid = 0.5 * (lo + top)
+        if q.feasible(mid, start_week):
+            lo = mid
+        else:
+            top = mid
+    # climb in small steps, each check starting from the plan just found (a check near
+    # the edge finds a plan far more surely from a plan close to it than from afar)
+    while lo > 0:
+        step = lo * (1 + rel_tol / 2)
+        if step > upper or not q.feasible(step, start_week):
+            break
+        lo = step
+    return lo, upper
 
 
 def _earliest_start(q: _Quoter, volume: float, first: int) -> int | None:

@@ -291,6 +291,8 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
         else:
             info, x = _two_phase(prob, variables, model, settings, tmp, log, integ, phase2,
                                  start=start)
+        if initial is not None:
+            info, x = _keep_start(model, np.asarray(initial, float), info, x, settings)
         duals: dict[str, np.ndarray] = {}
         relaxed: dict[str, np.ndarray] = {}
         if settings.duals and info.has_plan:
@@ -302,6 +304,30 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
             else:
                 relaxed = duals
     return Solution(model=model, x=x, info=info, duals=duals, relaxed_duals=relaxed)
+
+
+def _keep_start(model: LinearModel, x0: np.ndarray, info: SolveInfo, x: np.ndarray,
+                settings: SolveSettings, tol: float = 1e-6):
+    """The start plan, if it is a whole plan of the model and better than what the solver
+    returned (or the solver returned none): the solver may lose a start its phases do
+    not keep."""
+    integ = model.integrality.astype(bool)
+    ok = (x0.shape == (model.n,) and np.all(x0 >= model.lb - tol) and
+          np.all(x0 <= model.ub + tol) and np.allclose(x0[integ], np.round(x0[integ])) and
+          all(float(f.violation(x0).max(initial=0.0)) <= tol * max(1.0, float(
+              np.abs(f.b).max(initial=1.0))) for f in model.families.values()))
+    if not ok:
+        return info, x
+    obj0 = float(model.c @ x0 + model.c0)
+    if info.has_plan and info.objective is not None and info.objective <= obj0 + 1e-9:
+        return info, x
+    bound = info.best_bound
+    gap = _gap(obj0, bound)
+    limited = _open(obj0, bound, settings)
+    msg = ("the plan the solver was started from; the solver found none better in the "
+           "time limit" + (f" (gap {gap:.2%})" if gap is not None else ""))
+    return SolveInfo(settings.solver, "feasible" if limited else "optimal", not limited,
+                     limited, obj0, bound, gap, info.seconds, msg), x0
 
 
 def _set_start(variables, start: np.ndarray | None) -> bool:

@@ -58,3 +58,28 @@ def test_risk_json_and_workbook(tmp_path, monkeypatch, fly_plan, capsys):
     wb = openpyxl.load_workbook(out)
     assert wb.sheetnames[1] == "Risk"
     assert len(wb["Risk"]._charts) == 2
+
+
+def test_quote_json_and_workbook(tmp_path, fly, capsys):
+    """A small order on a six-week copy of the demo: the issue's JSON keys, the plan
+    workbook with the answer first."""
+    from planner.scenario import dump_toml
+    scn = fly.model_copy(deep=True)
+    scn.plan.horizon_weeks = 6
+    path = tmp_path / "six-weeks.toml"
+    path.write_text(dump_toml(scn))
+    out = tmp_path / "quote.xlsx"
+    code = main(["quote", str(path), "--weekly", "0.3", "--weeks", "2", "--customer",
+                 "Hillside Growers", "--json", "-o", str(out)])
+    text, err = capsys.readouterr()
+    assert code == 0, err
+    d = json.loads(text)
+    for key in ("feasible", "extra_cost_per_week", "cost_per_million", "ramp_up_start",
+                "max_weekly_volume", "earliest_full_start", "limiting_resources"):
+        assert key in d
+    assert d["feasible"] is True and d["max_weekly_volume"] is None
+    assert d["extra_cost_per_week"] > 0
+    wb = openpyxl.load_workbook(out)
+    assert wb.sheetnames[0] == "Quote"
+    assert "Hillside Growers (quote)" in {c.value for row in wb["Orders"].iter_rows()
+                                          for c in row}

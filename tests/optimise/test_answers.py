@@ -5,7 +5,7 @@ import math
 import numpy as np
 import pytest
 
-from planner.optimise import plan_standard_week, settings_for
+from planner.optimise import plan_standard_week, settings_for, verify_plan
 from planner.optimise.capacity import capacity
 from planner.optimise.data import lead_time_days
 from planner.optimise.expansion import expand, sweep
@@ -45,11 +45,18 @@ def test_largest_volume_is_feasible_and_one_percent_more_is_not(short_fly, big_q
     s = big_quote.summary()
     assert not s["feasible"] and s["limiting_resources"]
     v = s["max_weekly_volume"]
-    assert 0 < v < 6.0
+    assert 0 < v < 1.0 and v <= s["max_weekly_volume_bound"]
     q = _Quoter(short_fly, settings_for(short_fly), start_batches(short_fly, settings_for(
         short_fly)), "Quote (quote)", 3)
     q.keep_book(big_quote.baseline)
-    assert q.feasible(v, big_quote.start_week)
+    # feasible: the plan promised delivers it, and keeps every rule when re-checked from
+    # its own numbers (planner.optimise.verify, independent of the solver)
+    plan = big_quote.with_order
+    assert s["plan_volume"] == v and s["shortfall_million"] <= q.tolerance(v)
+    book = plan.weekly[plan.weekly["customer"] != "Quote (quote)"]
+    assert book["shortfall"].sum() <= 1e-6  # the book is not robbed
+    assert verify_plan(plan) == []
+    # one per cent more: no whole plan within a check's time (the gap of the search)
     assert not q.feasible(1.01 * v, big_quote.start_week)
 
 
