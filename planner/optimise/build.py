@@ -62,25 +62,7 @@ FAMILIES = {
     "one_harvest_age": ("-", "sum_theta use_harvest[theta] = 1", "-"),
     "harvest_choice": ("laying day d, theta", "release[d,theta] <= Pmax_d use_harvest[theta]",
                        "pupae"),
-    "stay_close": ("cage or tray decision, side", "dev >= x - x_ref and dev >= x_ref - x, each "
-                   "unit of dev priced at a tiny cost (quotes only)", "cages or trays"),
 }
-
-
-def _stay_close(m: LinearModel, reference: dict, cage_cols, tray_cols, stick: float) -> None:
-    cols = np.concatenate([cage_cols.reshape(-1), tray_cols])
-    ref = np.concatenate([np.asarray(reference["cages"], float).reshape(-1),
-                          np.asarray(reference["trays"], float)])
-    dev = m.add_block("deviation", [(int(c),) for c in cols], 0, np.inf, False, "units")
-    k = np.arange(cols.size)
-    rows = np.concatenate([k, k, cols.size + k, cols.size + k])
-    cc = np.concatenate([dev.offset + k, cols, dev.offset + k, cols])
-    vals = np.concatenate([np.ones(cols.size), -np.ones(cols.size), np.ones(cols.size),
-                           np.ones(cols.size)])
-    m.add_family("stay_close", [("up", int(c)) for c in cols] + [("down", int(c)) for c in cols],
-                 ">=", rows, cc, vals, np.concatenate([-ref, ref]), unit="units",
-                 description=FAMILIES["stay_close"][1])
-    m.add_cost("stay_close", dev.offset + k, np.full(cols.size, stick))
 
 
 class BuiltModel:
@@ -147,8 +129,7 @@ class _Rows:
         return np.concatenate(self.r), np.concatenate(self.c), np.concatenate(self.v)
 
 
-def build_model(data: PlanData, *, relax: bool = False, reference: dict | None = None,
-                stick: float = 1e-3) -> BuiltModel:
+def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
     """Build the programme.
 
     Parameters
@@ -156,11 +137,6 @@ def build_model(data: PlanData, *, relax: bool = False, reference: dict | None =
     data : PlanData
     relax : bool
         Drop integrality (the LP relaxation).
-    reference : dict, optional
-        ``{"cages": array (days x discard ages), "trays": array (days)}`` of another plan
-        on the same days: every unit of difference costs ``stick`` [currency], so that of
-        equally cheap plans the one closest to the reference is chosen (quotes compare a
-        plan with and without an order this way). Family ``stay_close``.
     """
     scn = data.scenario
     m = LinearModel(f"broodline_{data.mode}")
@@ -479,8 +455,6 @@ def build_model(data: PlanData, *, relax: bool = False, reference: dict | None =
         weeks_ready = [max(0, (n - max(r, 0)) / 7.0) for r in data.option_ready]
         m.add_cost("expansion", buy.offset + np.arange(buy.size),
                    [o.weekly_cost * wk for o, wk in zip(data.options, weeks_ready)])
-    if reference is not None:
-        _stay_close(m, reference, cage_cols, tray_cols, stick)
     m.c0 = costs.per_cage_day * float(occ0.sum())
     const["order_cells"] = order_cells
     const["cohorts"] = cohorts
