@@ -142,7 +142,8 @@ def quote_text(q, cur: str) -> str:
             lines.append(f"  The full volume can be delivered from week {s['earliest_full_start']}"
                          f" ({s['earliest_full_start_date']}).")
         elif s["max_weekly_volume"] is not None:
-            lines.append("  The full volume cannot be delivered from any start within a year.")
+            lines.append("  The full volume cannot be delivered from any start within the "
+                         f"plan's {q.baseline.data.report_weeks} weeks.")
         if s["limiting_resources"]:
             lines.append("  What stops it: " + ", ".join(s["limiting_resources"]) + ".")
     vol = s["plan_volume"]
@@ -162,6 +163,18 @@ def quote_text(q, cur: str) -> str:
     return "\n".join(lines)
 
 
+def _quote_units(cur: str) -> dict[str, str]:
+    """The unit of each quantity of a quote's summary, for the workbook."""
+    million = "million/week"
+    return {"weekly_volume": million, "max_weekly_volume": million,
+            "max_weekly_volume_bound": million, "plan_volume": million,
+            "weeks": "weeks", "start_week": "plan week", "earliest_full_start": "plan week",
+            "extra_cost_total": cur, "extra_cost_per_week": f"{cur}/week",
+            "cost_per_million": f"{cur}/million", "cost_uncertainty": cur,
+            "delivered_million": "million", "shortfall_million": "million",
+            "seconds": "s"}
+
+
 def _cmd_quote(args) -> int:
     scn = load_scenario(args.scenario)
     first = _week(scn, args.start, "--start")
@@ -172,7 +185,8 @@ def _cmd_quote(args) -> int:
     outputs = {}
     if args.output:
         s = q.summary()
-        rows = [(k.replace("_", " "), v, "") for k, v in s.items()
+        units = _quote_units(cur)
+        rows = [(k.replace("_", " "), v, units.get(k, "")) for k, v in s.items()
                 if k not in ("first_changes", "limiting_resources")]
         rows += [("first changes", s["first_changes"], ""),
                  ("limiting resources", s["limiting_resources"], "")]

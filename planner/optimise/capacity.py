@@ -11,6 +11,7 @@ of the cycle) would allow.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -117,15 +118,11 @@ def capacity(scn: Scenario, settings: SolveSettings | None = None,
     its shadow price [million/week per extra unit on every day]."""
     from planner.optimise import settings_for
     base = settings or settings_for(scn)
-    s = SolveSettings(solver=base.solver, time_limit=base.time_limit,
-                      relative_gap=min(base.relative_gap, 1e-4), threads=base.threads,
-                      duals=False, strategy="direct")
+    s = dataclasses.replace(base.for_lp(), relative_gap=min(base.relative_gap, 1e-4))
     resources = _resources(scn)
     v_max, sol = _volume(max_volume_model(scn, cycle_days=cycle_days), s)
     lp = max_volume_model(scn, relax=True, cycle_days=cycle_days)
-    lp_sol = solve(lp.model, SolveSettings(solver=s.solver, time_limit=s.time_limit,
-                                           relative_gap=0.0, threads=s.threads, duals=True,
-                                           strategy="direct"))
+    lp_sol = solve(lp.model, s.for_lp(duals=True))
     rows = []
     for r in resources:
         others = [x for x in resources if x != r]

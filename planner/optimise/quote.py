@@ -20,8 +20,9 @@ The quote adds the order to the book and uses the same programme (no second mode
   error, which is reported).
 - If the order cannot be taken in full: the largest constant weekly volume from the same
   start (bisection on the volume: with LP checks for an upper bound, then with whole-plan
-  checks below it; the volume promised has a whole plan, the bound is reported beside it) and the earliest start at which the full volume can be
-  delivered (forward steps that double, then bisection on the week), each by search over
+  checks below it; the volume promised has a whole plan, the bound is reported beside
+  it) and the earliest start at which the full volume can be delivered (forward steps
+  that double, then bisection on the week), each by search over
   solves, and the resources that stop it (the shortfall diagnosis of the full order's LP
   relaxation). The plan, ramp-up and extra cost are then those of the largest volume that
   can be promised.
@@ -59,9 +60,8 @@ PRIORITY = 10.0
 SEARCH_SECONDS = 8.0
 #: A check that started from a filling plan of a smaller volume and stops at its time
 #: limit with less than this share of the order unmet [-] is run once more from the plan
-#: without the quote, with RETRY times the time.
+#: without the quote.
 NEAR_SHARE = 0.02
-RETRY = 1.0
 #: Time limit of the least-cost plan at the largest volume that can be promised [s] (the
 #: scenario's, if shorter): a plan at the edge of capacity is hard to prove cheapest, so
 #: its cost is reported with the gap it reached.
@@ -271,10 +271,7 @@ class _Quoter:
         for b in m.blocks.values():
             b.integer = False
         self.solves += 1
-        lp = solve(m, SolveSettings(solver=self.settings.solver,
-                                    time_limit=self.settings.time_limit, relative_gap=0.0,
-                                    threads=self.settings.threads, duals=False,
-                                    strategy="direct"))
+        lp = solve(m, self.settings.for_lp())
         for b, was in zip(m.blocks.values(), integers):
             b.integer = was
         if not lp.info.has_plan:
@@ -283,27 +280,27 @@ class _Quoter:
         tol = self.tolerance(volume)
         if lp_short > tol or lp_only:
             return lp_short
-        start = self._start_plan(built, self._nearest(key, volume))
+        # start from the closest filling plan found so far; near the edge a check that
+        # runs out of time from there is tried once more from the plan without the quote,
+        # where the solver takes another path
+        nearest = self._nearest(key, volume)
+        starts = [self._start_plan(built)]
+        if nearest is not None:
+            starts.insert(0, self._start_plan(built, nearest))
         unmet, sol = math.inf, None
-        for attempt in range(2):
-            seconds = self.search_seconds * (1.0 if attempt == 0 else RETRY)
+        for start in starts:
             self.solves += 1
             sol = solve(m, dataclasses.replace(self.settings, log_path=None, duals=False,
                                                relative_gap=1e-6, absolute_gap=tol / 2,
                                                time_limit=min(self.settings.time_limit,
-                                                              seconds)),
+                                                              self.search_seconds)),
                         initial=start)
             if not sol.info.has_plan:
                 break
             unmet = self._unmet(short, sol.x, quoted)
-            # close to filled but stopped by the time limit: once more from the other
-            # start (the plan without the quote), where the solver takes another path
             near = unmet <= NEAR_SHARE * volume * self.weeks
-            other = self._start_plan(built)
-            if unmet <= tol or not near or not sol.info.time_limited or attempt \
-                    or start is None or np.array_equal(start, other):
+            if unmet <= tol or not near or not sol.info.time_limited:
                 break
-            start = other
         if not math.isfinite(unmet):
             return math.inf
         if unmet <= tol:
@@ -430,8 +427,8 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
     delivered = float(new.weekly.loc[new.weekly["customer"] == name, "released"].sum())
     in_horizon = min(weeks, max(0, scn.plan.horizon_weeks - first + 1))
     extra = operating_cost(new) - operating_cost(base)
-    noise = sum((r.info.gap or 0.0) * abs(r.info.objective or 0.0) for r in {id(base): base,
-                                                                              id(new): new}.values())
+    plans = [base] if new is base else [base, new]
+    noise = sum((r.info.gap or 0.0) * abs(r.info.objective or 0.0) for r in plans)
     res = QuoteResult(
         customer=customer, weekly_volume=weekly_volume, start_week=first, weeks=weeks,
         feasible=feasible and short <= q.tolerance(weekly_volume), baseline=base,
@@ -510,9 +507,10 @@ def _earliest_start(q: _Quoter, volume: float, first: int) -> int | None:
             good = week
             break
         last_bad = week
+        if week == limit:
+            break
         step *= 2
-        week = min(first + step, limit) if first + step > limit and week < limit else \
-            first + step
+        week = min(first + step, limit)
     if good is None:
         return None
     lo, hi = last_bad, good

@@ -69,6 +69,13 @@ class SolveSettings:
     strategy: str = "two-phase"
     absolute_gap: float | None = None
 
+    def for_lp(self, duals: bool = False) -> "SolveSettings":
+        """The same solver, threads and time limit, for a linear programme (solved to
+        optimality in one call)."""
+        return SolveSettings(solver=self.solver, time_limit=self.time_limit,
+                             relative_gap=0.0, threads=self.threads, duals=duals,
+                             strategy="direct")
+
 
 @dataclass
 class SolveInfo:
@@ -330,6 +337,18 @@ def _keep_start(model: LinearModel, x0: np.ndarray, info: SolveInfo, x: np.ndarr
                      limited, obj0, bound, gap, info.seconds, msg), x0
 
 
+@contextlib.contextmanager
+def _continuous(variables, idx):
+    """Relax the integer variables ``idx`` for the duration of the block."""
+    for k in idx:
+        variables[k].cat = pulp.LpContinuous
+    try:
+        yield
+    finally:
+        for k in idx:
+            variables[k].cat = pulp.LpInteger
+
+
 def _set_start(variables, start: np.ndarray | None) -> bool:
     """Give the variables a start plan's values (for CBC's warm start); False if none."""
     if start is None:
@@ -346,14 +365,11 @@ def _with_phase0(prob, variables, model, settings, tmp, log, integ, phase0, phas
     measured against phase 0's bound, a valid bound of the full problem."""
     t0 = time.perf_counter()
     rest = np.flatnonzero(integ & ~phase0)
-    for k in rest:
-        variables[k].cat = pulp.LpContinuous
-    status, sol_status, x0, bound0, t = _run(prob, variables, model, settings, tmp,
-                                             log + ".0", 0.3 * settings.time_limit,
-                                             settings.relative_gap / 5,
-                                             warm=_set_start(variables, start))
-    for k in rest:
-        variables[k].cat = pulp.LpInteger
+    with _continuous(variables, rest):
+        status, sol_status, x0, bound0, t = _run(prob, variables, model, settings, tmp,
+                                                 log + ".0", 0.3 * settings.time_limit,
+                                                 settings.relative_gap / 5,
+                                                 warm=_set_start(variables, start))
     info0 = _interpret(settings, status, sol_status, x0, model, bound0, t)
     if not info0.has_plan:
         return info0, x0
@@ -382,13 +398,10 @@ def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2, outer_
     second = np.flatnonzero(phase2)
     budget = settings.time_limit
     t_start = time.perf_counter()
-    for k in second:
-        variables[k].cat = pulp.LpContinuous
-    status, sol_status, x1, bound, t1 = _run(prob, variables, model, settings, tmp, log,
-                                             0.7 * budget, None,
-                                             warm=_set_start(variables, start))
-    for k in second:
-        variables[k].cat = pulp.LpInteger
+    with _continuous(variables, second):
+        status, sol_status, x1, bound, t1 = _run(prob, variables, model, settings, tmp, log,
+                                                 0.7 * budget, None,
+                                                 warm=_set_start(variables, start))
     info1 = _interpret(settings, status, sol_status, x1, model, bound, t1)
     if not info1.has_plan:
         return info1, x1
@@ -502,8 +515,7 @@ def _relaxed_duals(model, settings, tmp) -> dict[str, np.ndarray]:
     """Row duals of the LP relaxation (integrality dropped): the long-run value of one
     more unit of each right-hand side when cages and trays may be fractional."""
     prob, _, rows = to_pulp(model, relax=True)
-    lp_settings = SolveSettings(solver=settings.solver, time_limit=settings.time_limit,
-                                relative_gap=0.0, threads=settings.threads, duals=False)
+    lp_settings = settings.for_lp()
     try:
         with _quiet():
             prob.solve(_make_solver(lp_settings, tmp, None, lp_only=True))
@@ -524,8 +536,7 @@ def _fixed_integer_duals(model, prob, variables, rows, x, settings, tmp):
         v = variables[k]
         v.lowBound = v.upBound = float(x[k])
         v.cat = pulp.LpContinuous
-    lp_settings = SolveSettings(solver=settings.solver, time_limit=settings.time_limit,
-                                relative_gap=0.0, threads=settings.threads, duals=False)
+    lp_settings = settings.for_lp()
     solver = _make_solver(lp_settings, tmp, None, lp_only=True)
     try:
         with _quiet():
