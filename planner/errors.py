@@ -96,3 +96,10 @@ class DemographyError(BroodlineError):
 
 class SolverError(BroodlineError):
     """The solver is missing, or failed in a way the user can act on."""
+
+
+class NoPlanError(SolverError):
+    """A solve that an answer needs ended with no plan (nothing found within the time
+    limit, or an infeasible start state); the CLI exits with code 3."""
+
+    exit_code = 3

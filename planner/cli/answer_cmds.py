@@ -10,7 +10,7 @@ from pathlib import Path
 
 from planner.cli.format import checked, dumps, num, table
 from planner.cli.plan_cmds import solver_options
-from planner.errors import InputError
+from planner.errors import InputError, NoPlanError
 from planner.optimise import settings_for
 from planner.optimise.capacity import capacity
 from planner.optimise.expansion import expand, progress_bar, sweep
@@ -252,9 +252,11 @@ def _cmd_expand(args) -> int:
             print(f"wrote {p}")
         return 0
     res = expand(scn, args.target, week, settings)
+    if not res.plan.info.has_plan:
+        raise NoPlanError(f"no plan for the target: {res.plan.info.message}")
     s = res.summary()
     outputs = {}
-    if args.output and res.plan.info.has_plan:
+    if args.output:
         rows = [("target", s["target"], "million/week"), ("from", s["from_date"], ""),
                 ("bought", s["bought"], "units"), ("expansion cost", s["expansion_cost"], cur),
                 ("total cost", s["total_cost"], cur),

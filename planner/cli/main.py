@@ -65,7 +65,7 @@ def main(argv: list[str] | None = None) -> int:
     except BroodlineError as exc:
         for line in exc.lines():
             print(f"error: {line}", file=sys.stderr)
-        return EXIT_USER
+        return getattr(exc, "exit_code", EXIT_USER)
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130

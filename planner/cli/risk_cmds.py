@@ -7,6 +7,7 @@ from pathlib import Path
 
 from planner.cli.format import checked, dumps, num, table
 from planner.cli.plan_cmds import solver_options
+from planner.errors import NoPlanError
 from planner.optimise import plan_horizon, settings_for
 from planner.reports import CAUTIONS, write_plan_workbook
 from planner.risk import replay, safety_margin
@@ -59,8 +60,7 @@ def _cmd_risk(args) -> int:
     else:
         plan = plan_horizon(scn, settings)
         if not plan.info.has_plan:
-            print(f"error: no plan to replay: {plan.info.message}", file=sys.stderr)
-            return 3
+            raise NoPlanError(f"no plan to replay: {plan.info.message}")
         risk = replay(plan, replicates=args.replicates, seed=args.seed)
     s = risk.summary()
     out = {"risk": s}

@@ -37,6 +37,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from planner.errors import NoPlanError
 from planner.optimise.build import build_model
 from planner.optimise.data import StartBatches, compile_horizon
 from planner.optimise.results import PlanResult, operating_cost, read_back
@@ -399,6 +400,8 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
     q = _Quoter(scn, settings, start, name, weeks)
     first = start_week or default_start_week(scn)
     base = q.cost_plan(None, first)
+    if not base.info.has_plan:
+        raise NoPlanError(f"no plan even without the quote: {base.info.message}")
     q.keep_book(base)
     least = q.unmet(weekly_volume, first)
     feasible = least <= q.tolerance(weekly_volume)

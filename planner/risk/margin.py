@@ -17,7 +17,7 @@ import dataclasses
 import time
 from dataclasses import dataclass, field
 
-from planner.errors import InputError
+from planner.errors import InputError, NoPlanError
 from planner.optimise.build import build_model
 from planner.optimise.data import compile_horizon
 from planner.optimise.results import PlanResult, operating_cost, read_back
@@ -103,8 +103,8 @@ def safety_margin(scn: Scenario, target_fill: float, replicates: int = 2000, see
         if m not in cache:
             plan = plan_with_margin(scn, m, settings, start, horizon_weeks, week)
             if not plan.info.has_plan:
-                raise InputError(f"no plan at a margin of {m:.1%}: {plan.info.message}",
-                                 place="--target-fill")
+                raise NoPlanError(f"no plan at a safety margin of {m:.1%}: "
+                                  f"{plan.info.message}")
             if base_orders is None:
                 base_orders = plan.data.ordered.copy()
             risk = replay(plan, variation, replicates, seed, ordered=base_orders)

@@ -83,3 +83,13 @@ def test_quote_json_and_workbook(tmp_path, fly, capsys):
     assert wb.sheetnames[0] == "Quote"
     assert "Hillside Growers (quote)" in {c.value for row in wb["Orders"].iter_rows()
                                           for c in row}
+
+
+def test_no_plan_is_one_line_and_exit_3(monkeypatch, capsys):
+    from types import SimpleNamespace
+    no_plan = SimpleNamespace(info=SimpleNamespace(has_plan=False,
+                                                   message="no plan within the time limit"))
+    monkeypatch.setattr(risk_cmds, "plan_horizon", lambda scn, settings: no_plan)
+    assert main(["risk", FLY, "--replicates", "10"]) == 3
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "no plan to replay" in err[0]
