@@ -95,7 +95,8 @@ def _cmd_risk(args) -> int:
                   f"least {m['target_fill']:.0%}; it costs {num(m['extra_cost_per_week'])} {cur}"
                   f"/week more ({m['solves']} solves, {m['seconds']:.0f} s).")
         else:
-            print(f"No margin up to 64 % fills every week from week {m['from_week']} with "
+            print(f"No margin up to {m['max_margin']:.0%} fills every week from week "
+                  f"{m['from_week']} with "
                   f"probability {m['target_fill']:.0%}: the facility cannot plan enough "
                   "above the orders; the replay below is of the plan without a margin.")
     w = s["weeks"]

@@ -5,7 +5,7 @@ every week likely to be filled.
 """
 
 from planner.risk.margin import MarginResult, plan_with_margin, safety_margin
-from planner.risk.simulate import RiskResult, Variation, beta_parameters, replay
+from planner.risk.simulate import NO_VARIATION, RiskResult, beta_parameters, replay
 
-__all__ = ["replay", "Variation", "RiskResult", "beta_parameters", "safety_margin",
+__all__ = ["replay", "NO_VARIATION", "RiskResult", "beta_parameters", "safety_margin",
            "plan_with_margin", "MarginResult"]

@@ -23,8 +23,8 @@ from planner.optimise.data import compile_horizon
 from planner.optimise.results import PlanResult, operating_cost, read_back
 from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
-from planner.risk.simulate import RiskResult, Variation, replay
-from planner.scenario.schema import Scenario
+from planner.risk.simulate import RiskResult, replay
+from planner.scenario.schema import Scenario, Variation
 
 __all__ = ["plan_with_margin", "safety_margin", "MarginResult"]
 
@@ -53,6 +53,7 @@ class MarginResult:
 
     target_fill: float
     from_week: int                     # first plan week the margin and target apply to
+    max_margin: float                  # the largest margin tried [-]
     margin: float | None               # [-]; None: the target cannot be met
     plan: PlanResult
     risk: RiskResult
@@ -66,7 +67,8 @@ class MarginResult:
     def summary(self) -> dict:
         weeks = self.base_plan.data.report_weeks
         return {"target_fill": self.target_fill, "margin": self.margin,
-                "met": self.margin is not None, "from_week": self.from_week,
+                "met": self.margin is not None, "max_margin": self.max_margin,
+                "from_week": self.from_week,
                 "from_date": self.base_plan.data.date(7 * (self.from_week - 1)),
                 "extra_cost_per_week": self.extra_cost_per_week,
                 "currency": self.plan.scenario.costs.currency,
@@ -145,6 +147,7 @@ def safety_margin(scn: Scenario, target_fill: float, replicates: int = 2000, see
     extra = (operating_cost(plan) - operating_cost(base_plan)) / weeks \
         if found is not None else None
     trail.sort(key=lambda r: r["margin"])
-    return MarginResult(target_fill=target_fill, from_week=week, margin=found, plan=plan, risk=risk,
+    return MarginResult(target_fill=target_fill, from_week=week, max_margin=max_margin,
+                        margin=found, plan=plan, risk=risk,
                         base_plan=base_plan, base_risk=base_risk, extra_cost_per_week=extra,
                         trail=trail, solves=len(cache), seconds=time.perf_counter() - t0)

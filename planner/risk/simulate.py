@@ -29,8 +29,8 @@ on earlier days):
   every customer of the week is filled exactly when the week's product covers the week's
   orders.
 
-With every variation zero and ``binomial=False`` the replay reproduces the plan's own
-flows (the eggs and pupae rows of the plan, read from its matrices).
+With every variation zero (:data:`NO_VARIATION`) and ``binomial=False`` the replay
+reproduces the plan's own flows (the eggs and pupae rows of the plan, read from its matrices).
 
 References
 ----------
@@ -41,7 +41,6 @@ ed., Wiley: the beta-binomial mixture (section 6.7.2), its mean ``n mu`` and var
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -51,44 +50,16 @@ import scipy.sparse as sp
 from planner.errors import InputError
 from planner.optimise.build import PUPAE_UNIT, _constant
 from planner.optimise.results import PlanResult
+from planner.scenario.schema import Variation
 
-__all__ = ["Variation", "RiskResult", "replay", "beta_parameters", "batch_survivors"]
+__all__ = ["NO_VARIATION", "RiskResult", "replay", "beta_parameters", "batch_survivors"]
 
 #: A week counts as filled when its product is within this share of its orders [-].
 FILL_TOLERANCE = 1e-6
 
 
-@dataclass(frozen=True)
-class Variation:
-    """Variation of the biology around the life table (see the module notes).
-
-    Attributes
-    ----------
-    hatch_cv, larval_cv : float
-        [-] coefficient of variation of a seeding batch's hatch and larval survival.
-    fecundity_cv : float
-        [-] coefficient of variation of eggs per female between cages.
-    tray_loss : float
-        [-] chance that a seeded tray is lost whole.
-    binomial : bool
-        Draw individual survival binomially (False: its expectation).
-    """
-
-    hatch_cv: float = 0.0
-    larval_cv: float = 0.0
-    fecundity_cv: float = 0.0
-    tray_loss: float = 0.0
-    binomial: bool = True
-
-    @classmethod
-    def from_colony(cls, colony, binomial: bool = True) -> "Variation":
-        v = colony.variation
-        return cls(v.hatch_cv, v.larval_cv, v.fecundity_cv, v.tray_loss, binomial)
-
-    @classmethod
-    def none(cls) -> "Variation":
-        """No variation at all: the replay is the plan."""
-        return cls(binomial=False)
+#: No variation at all (with ``binomial=False`` the replay is the plan).
+NO_VARIATION = Variation(hatch_cv=0.0, larval_cv=0.0, fecundity_cv=0.0, tray_loss=0.0)
 
 
 def beta_parameters(mean: float, cv: float, what: str = "survival") -> tuple[float, float]:
@@ -108,9 +79,7 @@ def beta_parameters(mean: float, cv: float, what: str = "survival") -> tuple[flo
 
 
 def _beta(rng, mean, cv, size, what):
-    if cv == 0 or mean >= 1.0:
-        if mean > 1.0 or (mean == 1.0 and cv > 0):
-            beta_parameters(mean, cv, what)  # raises: a share above 1 cannot vary
+    if cv == 0:
         return np.full(size, mean)
     a, b = beta_parameters(mean, cv, what)
     return rng.beta(a, b, size)
@@ -122,6 +91,7 @@ class RiskResult:
 
     plan: PlanResult
     variation: Variation
+    binomial: bool                     # individual survival drawn (else its expectation)
     replicates: int
     seed: int | None
     weeks: np.ndarray                  # plan week numbers reported (1-based)
@@ -135,10 +105,13 @@ class RiskResult:
     colony_end: np.ndarray             # (R,) eggs laid on the horizon's last egg day [million]
     planned_colony_end: float          # the plan's [million]
 
+    def filled(self) -> np.ndarray:
+        """(weeks, R): whether each replay filled each week's orders."""
+        return self.released >= self.ordered[:, None] * (1 - FILL_TOLERANCE) - 1e-12
+
     def fill_probability(self) -> np.ndarray:
         """Per reported week: chance that its orders are filled [-] (1 if none)."""
-        ok = self.released >= self.ordered[:, None] * (1 - FILL_TOLERANCE) - 1e-12
-        return ok.mean(axis=1)
+        return self.filled().mean(axis=1)
 
     def weekly_table(self) -> pd.DataFrame:
         """Per week and customer: order, fill probability, expected shortfall, P5 and P50
@@ -183,13 +156,12 @@ class RiskResult:
         table = self.weekly_table()
         return {
             "replicates": self.replicates, "seed": self.seed,
-            "variation": dataclasses.asdict(self.variation),
+            "variation": self.variation.model_dump() | {"binomial": self.binomial},
             "worst_week_fill_probability": self.worst_fill(),
             "worst_week": int(self.weeks[with_orders][np.argmin(fill[with_orders])])
             if with_orders.any() else None,
             "all_weeks_filled_probability": float(np.mean(np.all(
-                self.released[with_orders] >= self.ordered[with_orders, None]
-                * (1 - FILL_TOLERANCE) - 1e-12, axis=0))) if with_orders.any() else 1.0,
+                self.filled()[with_orders], axis=0))) if with_orders.any() else 1.0,
             "expected_shortfall_million": float(table.loc[table["customer"] == "all",
                                                           "expected_shortfall"].sum()),
             "colony_end_p5": float(np.percentile(self.colony_end, 5)),
@@ -228,15 +200,16 @@ def _plan_arrays(plan: PlanResult):
 
 
 def replay(plan: PlanResult, variation: Variation | None = None, replicates: int = 1000,
-           seed: int | None = 0, ordered: np.ndarray | None = None) -> RiskResult:
+           seed: int | None = 0, ordered: np.ndarray | None = None,
+           binomial: bool = True) -> RiskResult:
     """Replay the plan ``replicates`` times with random biology.
 
     Parameters
     ----------
     plan : PlanResult
         A solved dated plan.
-    variation : Variation, optional
-        Default: the colony model's ``variation`` with binomial survival.
+    variation : planner.scenario.schema.Variation, optional
+        The spreads (default: the colony model's ``variation``).
     replicates : int
         Number of replays [-].
     seed : int, optional
@@ -244,10 +217,12 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
     ordered : array (customers, weeks), optional
         The orders to judge the fill against [million/week] (default: the plan's own
         orders; a plan made with a safety margin is judged against the real book).
+    binomial : bool
+        Draw individual survival binomially (False: its expectation).
     """
     if replicates < 1:
         raise InputError(f"replicates = {replicates}: use at least 1", place="--replicates")
-    var = variation or Variation.from_colony(plan.scenario.colony)
+    var = variation or plan.scenario.colony.variation
     rng = np.random.default_rng(seed)
     R = int(replicates)
     A = _plan_arrays(plan)
@@ -322,10 +297,8 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
     def survivors(n_eggs_thousand: np.ndarray) -> np.ndarray:
         """Egg equivalents [thousand] of a batch's pupae at age a0."""
         alive = batch_survivors(rng, n_eggs_thousand * U, h_mean, var.hatch_cv, s_mean,
-                                var.larval_cv, rest, var.binomial)
+                                var.larval_cv, rest, binomial)
         return alive / lx[a0] / U
-
-    no_var = not var.binomial and var.hatch_cv == 0 and var.larval_cv == 0
 
     def seed_trays(n_trays) -> np.ndarray:
         """Trays not lost, of ``n_trays`` seeded."""
@@ -337,7 +310,7 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
     # cohorts supplied by trays seeded before day 0 (start trays)
     for i in np.flatnonzero((tray_of < 0) & (A["supply"] > 0)):
         supply = seed_trays(int(round(A["supply"][i] / rho_u))) * rho_u
-        resolve(i, supply if no_var else survivors(supply))
+        resolve(i, survivors(supply))
     cohort_of_tray = {int(t): i for i, t in enumerate(tray_of) if t >= 0}
     plan_trays = A["trays"]
     for t in range(n):
@@ -351,7 +324,7 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
         if i is None:
             continue
         supply = seeded * rho_u
-        resolve(i, supply if no_var else survivors(supply))
+        resolve(i, survivors(supply))
 
     # weekly product: shipping rows, each release scaled by its cohort's ratio
     rel_labels = plan.built.blocks["release"].labels
@@ -363,10 +336,8 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
     spare = per_cohort @ r_spare
     planned = np.asarray(A["ship_rel"] @ A["release"]).ravel()
     # spare pupae of the week's cohorts are harvested as far as the week is short
-    week_orders = np.zeros(len(A["ship_weeks"]))
     book = np.asarray(ordered if ordered is not None else data.ordered, float)
-    for k, w in enumerate(A["ship_weeks"]):
-        week_orders[k] = book[:, int(w) - 1].sum()
+    week_orders = book[:, np.asarray(A["ship_weeks"], np.int64) - 1].sum(axis=0)
     weekly = weekly + np.minimum(spare, np.maximum(week_orders[:, None] - weekly, 0.0))
     report = data.report_weeks
     week_row = {int(w): k for k, w in enumerate(A["ship_weeks"])}
@@ -378,11 +349,11 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
         if k is not None:
             released[w - 1] = weekly[k]
             plan_rel[w - 1] = planned[k]
-    cust_ordered = np.asarray(ordered if ordered is not None else data.ordered,
-                              float)[:, :report]
+    cust_ordered = book[:, :report]
     last_egg_day = min(n - 1, data.report_days - 1 + data.seed_lag)
     planned_end = float(_plan_eggs(A, data)[last_egg_day]) / 1e3
-    return RiskResult(plan=plan, variation=var, replicates=R, seed=seed, weeks=weeks,
+    return RiskResult(plan=plan, variation=var, binomial=binomial, replicates=R, seed=seed,
+                      weeks=weeks,
                       ordered=cust_ordered.sum(axis=0), released=released,
                       planned_release=plan_rel, customers=list(data.customers),
                       customer_ordered=cust_ordered, trays_seeded=trays_ok, eggs=eggs,

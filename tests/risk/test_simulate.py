@@ -7,13 +7,13 @@ from scipy import stats
 
 from planner.errors import InputError
 from planner.optimise import settings_for
-from planner.risk import Variation, beta_parameters, replay, safety_margin
+from planner.risk import NO_VARIATION, beta_parameters, replay, safety_margin
 from planner.risk.margin import plan_with_margin
 from planner.risk.simulate import batch_survivors
 
 
 def test_without_variation_the_replay_is_the_plan(fly_plan):
-    r = replay(fly_plan, Variation.none(), replicates=3, seed=1)
+    r = replay(fly_plan, NO_VARIATION, replicates=3, seed=1, binomial=False)
     d = fly_plan.daily
     n = len(d)
     # trays seeded, day by day, exactly
@@ -95,10 +95,11 @@ def eight_weeks(fly):
 
 def test_fill_rises_with_the_margin(eight_weeks):
     settings = settings_for(eight_weeks, time_limit=30)
+    book = None  # the real orders: those of the plan without a margin
     fills = []
     for m in (0.0, 0.06, 0.15):
         plan = plan_with_margin(eight_weeks, m, settings, from_week=5)
-        book = plan_with_margin(eight_weeks, 0.0, settings).data.ordered if m else None
+        book = plan.data.ordered if book is None else book
         r = replay(plan, replicates=1500, seed=4, ordered=book)
         fills.append(r.worst_fill(5))
     assert fills[0] < fills[1] < fills[2]
