@@ -125,7 +125,7 @@ def _task(params: dict) -> dict:
     """One sweep point, self-contained for a worker process: parameters in, plain dict out."""
     scn = params["scenario"]
     settings = SolveSettings(**params["settings"])
-    res = expand(scn, params["target"], params["from_week"], settings)
+    res = expand(scn, params["target"], params["from_week"], settings, start=params["start"])
     s = res.summary()
     row = {"target": params["target"], "status": s["status"],
            "time_limited": s["time_limited"], "total_cost": s["total_cost"],
@@ -155,9 +155,11 @@ def sweep(scn: Scenario, volumes: list[float], from_week: int | None = None,
     """
     from planner.optimise import settings_for
     settings = settings or settings_for(scn)
-    task_settings = dataclasses.asdict(dataclasses.replace(settings, log_path=None, threads=1))
-    params = [{"scenario": scn, "target": float(v), "from_week": from_week,
-               "settings": task_settings} for v in volumes]
+    task_settings = dataclasses.replace(settings, log_path=None, threads=1)
+    # the start state is the same for every target: solved once, here
+    start = start_batches(scn, task_settings)
+    params = [{"scenario": scn, "target": float(v), "from_week": from_week, "start": start,
+               "settings": dataclasses.asdict(task_settings)} for v in volumes]
     rows: list[dict] = []
     total = len(params)
 

@@ -465,6 +465,27 @@ def _demography(wb, res):
     _print_setup(ws, landscape=False)
 
 
+def _kv_rows(ws, row: int, rows: list[tuple[str, object, str]]) -> int:
+    """(quantity, value, unit) rows from ``row``; lists and dicts written as text.
+    Returns the next free row."""
+    for name, value, unit in rows:
+        if isinstance(value, list):
+            shown = ", ".join(map(str, value))
+        elif isinstance(value, dict):
+            shown = ", ".join(f"{k}: {v}" for k, v in value.items())
+        else:
+            shown = _cell(value)
+        ws.cell(row=row, column=1, value=name)
+        c = ws.cell(row=row, column=2, value=shown)
+        if isinstance(value, float):
+            c.number_format = _FMT["num"]
+        elif isinstance(value, dt.date):
+            c.number_format = _FMT["date"]
+        ws.cell(row=row, column=3, value=unit)
+        row += 1
+    return row
+
+
 def _front(wb, title: str, heading: str, rows: list[tuple[str, object, str]]):
     """A key/value sheet put first (quote or expansion answers)."""
     ws = wb.create_sheet(title, 0)
@@ -472,16 +493,7 @@ def _front(wb, title: str, heading: str, rows: list[tuple[str, object, str]]):
     ws["A1"].font = _TITLE
     for j, name in enumerate(("quantity", "value", "unit"), start=1):
         ws.cell(row=3, column=j, value=name).font = _BOLD
-    for i, (name, value, unit) in enumerate(rows, start=4):
-        ws.cell(row=i, column=1, value=name)
-        c = ws.cell(row=i, column=2, value=_cell(value) if not isinstance(value, (list, dict))
-                    else ", ".join(map(str, value)) if isinstance(value, list)
-                    else ", ".join(f"{k}: {v}" for k, v in value.items()))
-        if isinstance(value, float):
-            c.number_format = _FMT["num"]
-        elif isinstance(value, dt.date):
-            c.number_format = _FMT["date"]
-        ws.cell(row=i, column=3, value=unit)
+    _kv_rows(ws, 4, rows)
     _widths(ws, {1: 46, 2: 60, 3: 18})
     _print_setup(ws, landscape=False)
     wb.active = 0
@@ -493,15 +505,7 @@ def _risk(wb, risk, rows: list[tuple[str, object, str]] | None = None) -> None:
     ws["A1"] = (f"Risk: {risk.replicates} replays of the plan with random biology "
                 f"(seed {risk.seed})")
     ws["A1"].font = _TITLE
-    row = 3
-    for name, value, unit in rows or []:
-        ws.cell(row=row, column=1, value=name)
-        c = ws.cell(row=row, column=2, value=_cell(value))
-        if isinstance(value, float):
-            c.number_format = _FMT["num"]
-        ws.cell(row=row, column=3, value=unit)
-        row += 1
-    row += 1
+    row = _kv_rows(ws, 3, rows or []) + 1
     t = risk.weekly_table()
     weeks = t[t["customer"] == "all"].copy()
     fan = pd.DataFrame({
