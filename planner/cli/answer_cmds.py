@@ -115,6 +115,17 @@ def _week(scn, date: dt.date | None, what: str) -> int | None:
     return w
 
 
+def _stage_line(args):
+    """A line on stderr at every stage of an answer (also when redirected); none with
+    --quiet."""
+    if args.quiet:
+        return None
+
+    def say(text: str) -> None:
+        print(text, file=sys.stderr, flush=True)
+    return say
+
+
 def _note(args, text: str) -> None:
     if not args.quiet and sys.stderr.isatty():
         print(text, file=sys.stderr)
@@ -129,23 +140,35 @@ def quote_text(q, cur: str) -> str:
     if s["feasible"]:
         lines.append(f"Yes: {num(q.weekly_volume)} million/week for {q.weeks} weeks from {start} "
                      "can be taken in full.")
+    elif s["lead_time_limited"] and s["full_from_week"] is not None:
+        lines.append(f"Yes in full from week {s['full_from_week']} ({s['full_from_date']}): "
+                     f"{num(q.weekly_volume)} million/week for {q.weeks} weeks from {start}.")
+        for p in s["partial_weeks"]:
+            lines.append(f"  Week {p['week']} can have {p['fill']:.1%}, because of the "
+                         "egg-to-harvest lead time (its pupae are already laid or seeded).")
     else:
         lines.append(f"No: {num(q.weekly_volume)} million/week for {q.weeks} weeks from {start} "
                      "cannot be taken in full.")
+        for p in s["partial_weeks"]:
+            lines.append(f"  Week {p['week']}: {p['fill']:.1%} ({p['cause']}).")
         if s["max_weekly_volume"] is not None:
             bound = s.get("max_weekly_volume_bound")
-            lines.append(f"  The largest constant volume that can be promised from {start}: "
-                         f"{num(s['max_weekly_volume'])} million/week (a whole plan fills it"
+            lines.append("  The largest constant volume that can be promised in the weeks "
+                         f"lead time leaves free: {num(s['max_weekly_volume'])} million/week "
+                         "(a whole plan fills it"
                          + (f"; no more than {num(bound)} even with fractional cages and "
                             "trays)." if bound is not None else ")."))
         if s["earliest_full_start"] is not None:
             lines.append(f"  The full volume can be delivered from week {s['earliest_full_start']}"
                          f" ({s['earliest_full_start_date']}).")
         elif s["max_weekly_volume"] is not None:
-            lines.append("  The full volume cannot be delivered from any start within the "
-                         f"plan's {q.baseline.data.report_weeks} weeks.")
+            lines.append("  No later start within the plan's "
+                         f"{q.baseline.scenario.plan.horizon_weeks} weeks delivers the full "
+                         "volume (or none was found in the time given).")
         if s["limiting_resources"]:
             lines.append("  What stops it: " + ", ".join(s["limiting_resources"]) + ".")
+    if s["booked_shortfall_million"] > s["base_booked_shortfall_million"] + 1e-6:
+        lines.append("  Warning: booked orders are shorter with the quote than without it.")
     vol = s["plan_volume"]
     if vol:
         per_week = "-" if s["extra_cost_per_week"] is None else f"{s['extra_cost_per_week']:,.0f}"
@@ -156,9 +179,10 @@ def quote_text(q, cur: str) -> str:
         if s["ramp_up_start"]:
             lines.append(f"The ramp-up must begin on {s['ramp_up_start']}: "
                          + ("; ".join(s["first_changes"]) or "the plan changes from then") + ".")
-    if s["time_limited"]:
-        lines.append("Note: a plan behind this answer is time-limited (feasible, not proven "
-                     "cheapest).")
+    if s["time_limited"] or s["budget_exhausted"]:
+        lines.append("Note: the best answer found in the time given: a solve behind it "
+                     "stopped at its time limit (feasible, not proven best); the bounds "
+                     "above say how far it may be off.")
     lines.append(f"({s['solves']} solves, {s['seconds']:.0f} s)")
     return "\n".join(lines)
 
@@ -178,16 +202,16 @@ def _quote_units(cur: str) -> dict[str, str]:
 def _cmd_quote(args) -> int:
     scn = load_scenario(args.scenario)
     first = _week(scn, args.start, "--start")
-    _note(args, "quoting: several solves, this can take a few minutes ...")
     q = quote(scn, args.weekly, args.weeks, start_week=first, customer=args.customer,
-              settings=_settings(scn, args))
+              settings=_settings(scn, args), progress=_stage_line(args))
     cur = scn.costs.currency
     outputs = {}
     if args.output:
         s = q.summary()
         units = _quote_units(cur)
         rows = [(k.replace("_", " "), v, units.get(k, "")) for k, v in s.items()
-                if k not in ("first_changes", "limiting_resources")]
+                if k not in ("first_changes", "limiting_resources", "partial_weeks",
+                             "customers", "lead_time_weeks")]
         rows += [("first changes", s["first_changes"], ""),
                  ("limiting resources", s["limiting_resources"], "")]
         outputs["workbook"] = write_plan_workbook(

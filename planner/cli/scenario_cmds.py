@@ -6,7 +6,7 @@ from pathlib import Path
 
 from planner.cli.format import dumps, kv_table, num, table
 from planner.scenario import load_scenario
-from planner.scenario.check import check_report
+from planner.scenario.check import add_sustainable, check_report
 
 __all__ = ["register", "check_text"]
 
@@ -14,8 +14,11 @@ __all__ = ["register", "check_text"]
 def register(sub) -> None:
     p = sub.add_parser("check", help="validate a scenario and size its largest week",
                        description="Validate a scenario (TOML or input workbook) and print its "
-                                   "demography, capacities, order book and a first estimate of "
-                                   "what the largest week needs, flagging short resources.")
+                                   "demography, capacities, calendar, order book, a first "
+                                   "estimate of what the largest week needs (counting "
+                                   "kitchen days, shipping days and holidays) and the volume "
+                                   "the facility can sustain (the standard week's linear "
+                                   "programme), flagging short resources and weeks.")
     p.add_argument("scenario", help="scenario file (.toml or .xlsx)")
     p.add_argument("--json", action="store_true")
     p.set_defaults(handler=_cmd_check)
@@ -55,6 +58,8 @@ def check_text(rep: dict) -> str:
         rows.append((f"{name} (weekly mean)", c["regular_per_day"], "h/day"))
         rows.append((f"{name} overtime limit", c["overtime_limit"], "h/day"))
     out.append(kv_table(rows, title="Capacities"))
+    out.append("")
+    out.append(calendar_text(rep["calendar"]))
     book = rep["orders"]
     out.append("")
     weeks = len(book["total_by_week"])
@@ -68,31 +73,104 @@ def check_text(rep: dict) -> str:
         out.append("")
         out.append(f"First estimate for the largest week ({num(est['volume'])} million/week), "
                    f"stationary formulas at harvest age {est['harvest_age']} and discard age "
-                   f"{est['discard_age']} day (the cheapest allowed pair):")
+                   f"{est['discard_age']} day (the cheapest allowed pair), with the eggs of "
+                   f"{est['seeding_days_per_week']} laying days a week seeded and the pupae "
+                   f"of {est['release_days_per_week']} shipped:")
         out.append(table([(n["resource"], n["needed"], n["available"], n["unit"],
                            n["utilisation"], "SHORT" if n["short"] else "ok")
                           for n in est["needs"]],
                          ["resource", "needed", "available", "unit", "utilisation [-]", "status"]))
         out.append(kv_table([
-            ("eggs collected and seeded", est["eggs_per_day"], "eggs/day"),
-            ("trays seeded", est["trays_per_day"], "trays/day"),
+            ("eggs laid", est["eggs_laid_per_day"], "eggs/day"),
+            ("eggs seeded (weekly mean)", est["eggs_per_day"], "eggs/day"),
+            ("trays seeded per open kitchen day", est["trays_per_open_day"], "trays/day"),
             ("cages loaded", est["cages_loaded_per_day"], "cages/day"),
             ("pupae released", est["pupae_released_per_day"], "pupae/day"),
             ("variable cost", est["cost_per_week"], f"{est['currency']}/week"),
         ]))
+    sus = rep.get("sustainable")
+    if sus and sus.get("volume") is not None:
+        out.append("")
+        out.append(f"Sustainable volume (standard week, linear programme): "
+                   f"{num(sus['volume'])} million/week against {num(sus['largest_volume'])} "
+                   f"ordered in week {sus['largest_week']}"
+                   + (": SHORT." if sus["short"] else ": ok."))
+    if est or sus:
         if rep["short"]:
-            out.append("\nShort: " + ", ".join(rep["short"]) + ". The optimiser may still fill "
-                       "the orders with overtime, other ages or uneven days; these are averages.")
+            out.append("\nShort: " + ", ".join(rep["short"]) + ".")
+            out += [f"- {r}" for r in rep["reasons"]]
+            out.append("The stationary estimate uses averages: the optimiser may still fill "
+                       "the orders with overtime, other ages or uneven days; orders above the "
+                       "sustainable volume it cannot fill week after week.")
         else:
-            out.append("\nNo resource is short on average at this volume.")
+            out.append("\nNo resource is short on average at this volume, and no week is "
+                       "short by the calendar.")
     for note in rep.get("notes", []):
         out.append(f"note: {note}")
     return "\n".join(out)
 
 
+def calendar_text(cal: dict) -> str:
+    """The calendar section of the check report: shipping days, kitchen days, holidays
+    within the horizon, weeks with no shipping day, and the weeks whose own calendar
+    differs from the usual week or is short."""
+    def days(names):
+        return ", ".join(d.capitalize() for d in names) or "none"
+
+    rows = [("shipping days", days(cal["shipping_days"])
+             + ("" if cal["ship_on_holidays"] else " (not on holidays)")),
+            ("kitchen open", days(cal["kitchen_days"])),
+            ("kitchen shut", days(cal["kitchen_shut"])),
+            ("laying days a week seeded", f"{cal['seeding_days_per_week']} of 7"),
+            ("laying days a week shipped", f"{cal['release_days_per_week']} of 7"),
+            ("weeks with no shipping day",
+             ", ".join(str(w) for w in cal["weeks_without_shipping"]) or "none")]
+    hol = []
+    for h in cal["holidays"]:
+        notes = []
+        if h["kitchen_shut"]:
+            notes.append("kitchen shut")
+        if h["shipping_day_lost"]:
+            notes.append("no shipping")
+        hol.append(f"{h['date']} ({h['weekday'].capitalize()}, week {h['week']}"
+                   + (": " + ", ".join(notes) if notes else "") + ")")
+    rows.append(("holidays in the horizon", "; ".join(hol) or "none"))
+    if cal["holidays_outside_horizon"]:
+        rows.append(("holidays outside the horizon", str(cal["holidays_outside_horizon"])))
+    width = max(len(k) for k, _ in rows)
+    out = ["Calendar"] + [f"{k.ljust(width)}  {v}" for k, v in rows]
+    odd = [w for w in cal["weeks"]
+           if w["holidays"] or w.get("short") or (w["ordered"] > 0 and not w["shipping_days"])
+           or w["seeding_days"] != cal["seeding_days_per_week"]
+           or w["release_days"] != cal["release_days_per_week"]]
+    if odd:
+        out.append("")
+        out.append(table([(w["week"], ", ".join(w["holidays"]) or "-",
+                           len(w["shipping_days"]), w["kitchen_days"], w["seeding_days"],
+                           w["release_days"], w["ordered"],
+                           ", ".join(w.get("short", [])) or
+                           ("no shipping day" if w["ordered"] > 0 and not w["shipping_days"]
+                            else "-"))
+                          for w in odd],
+                         ["week", "holidays", "shipping days", "kitchen days",
+                          "laying days seeded", "laying days shipped", "ordered [million]",
+                          "short in this week only"],
+                         title="Weeks whose calendar differs from the usual week (the laying "
+                               "days counted are those whose pupae ship in the week)"))
+    return "\n".join(out)
+
+
 def _cmd_check(args) -> int:
+    from planner.errors import BroodlineError
+    from planner.optimise.checkcap import sustainable_volume
     scn = load_scenario(args.scenario)
     rep = check_report(scn)
+    if rep["orders"]["largest_volume"] > 0:
+        try:
+            sus = sustainable_volume(scn)
+        except BroodlineError as exc:  # no solver: the estimate still stands
+            sus = {"volume": None, "status": f"not solved ({exc})"}
+        add_sustainable(rep, **sus)
     print(dumps(rep) if args.json else check_text(rep))
     return 0
 

@@ -37,15 +37,20 @@ def plan_horizon(scn, settings: SolveSettings | None = None, *, start: StartBatc
     the standard week at that volume first.
     """
     import dataclasses
+    import time
 
     from planner.optimise.standard_week import start_batches
+    t0 = time.perf_counter()
     settings = settings or settings_for(scn)
     if start is None:
-        start = start_batches(scn, dataclasses.replace(settings, log_path=None))
+        start = start_batches(scn, dataclasses.replace(
+            settings, log_path=None, time_limit=max(0.2 * settings.time_limit, 1.0)))
     data = compile_horizon(scn, start, horizon_weeks=horizon_weeks, extra_orders=extra_orders,
                            use_expansion=use_expansion)
     built = build_model(data)
-    return read_back(built, solve(built.model, settings))
+    # the time limit bounds the whole plan: what building took is not the solver's
+    left = max(settings.time_limit - (time.perf_counter() - t0), 1.0)
+    return read_back(built, solve(built.model, dataclasses.replace(settings, time_limit=left)))
 
 
 def plan_standard_week(scn, weekly_volume: float, settings: SolveSettings | None = None, *,

@@ -18,23 +18,79 @@ shortfall      customer, week               unmet order                         
 buy            expansion option             units bought (integer)                 units
 use_discard    discard age                  the one discard age (policy switch)    binary
 use_harvest    harvest age                  the one harvest age (policy switch)    binary
+share          priority class, week         largest relative shortfall of the      -
+                                            class's customers that week
+volume         -                            the asked volume (``Question.volume``) million/week
+start_week     first week                   the order starts that week             binary
+                                            (``Question.start_choice``)
 =============  ===========================  =====================================  ========
+
+What an answer changes in the programme is declared in a :class:`Question` and applied
+here; no code outside the builder edits a built model.
 
 Constraint families: see :data:`FAMILIES` (name, rows, maths); the README tables them.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
+
 import numpy as np
 
 from planner.optimise.data import PlanData
 from planner.optimise.model import LinearModel
 
-__all__ = ["build_model", "FAMILIES", "BuiltModel", "PUPAE_UNIT"]
+__all__ = ["build_model", "FAMILIES", "BuiltModel", "PUPAE_UNIT", "Question",
+           "PRIORITY_STEP", "SHARE_WEIGHT"]
 
 #: Pupae (and eggs) per model unit: release, load and the egg and pupae rows are in
 #: thousands, which keeps the matrix coefficients within a few orders of magnitude.
 PUPAE_UNIT = 1000.0
+
+#: An unmet million of a priority class costs this many times one of the class below
+#: it [-] (a lexicographic objective in one solve: one pupa serves one order, so a class
+#: is never robbed for the one below).
+PRIORITY_STEP = 100.0
+#: Objective weight of a class's largest relative shortfall in a week, per million
+#: ordered by the class that week, as a share of its shortfall price [-]: small, so it
+#: only decides how a short week is shared (pro rata), never how much is short.
+SHARE_WEIGHT = 1e-3
+
+
+@dataclass
+class Question:
+    """What an answer changes in the programme (applied by :func:`build_model`).
+
+    Attributes
+    ----------
+    volume : (customer, weeks), optional
+        The customer's order rows in these plan weeks (1-based) ask for the variable
+        ``V`` [million/week] instead of their data; its shortfall there is held at 0
+        and ``V`` is maximised with weight ``volume_weight`` [currency per million/week].
+    start_choice : (customer, weekly volume, weeks, first weeks, penalty), optional
+        The customer's order of ``weekly volume`` [million/week] runs ``weeks`` weeks
+        from one first week chosen among ``first weeks`` (binary ``start_week``); each
+        week later costs ``penalty`` [currency]. The customer's data rows only need to
+        exist in every week that some start covers.
+    shortfall_cap : dict, optional
+        ``{(customer, week): ub}``: shortfall of these cells at most ub [million].
+    fixed : dict, optional
+        ``{block: {label: value}}``: variables fixed at values.
+    lift : tuple of str
+        Capacity families lifted (``cage_slots``, ``racks``, ``diet``,
+        ``pupal_holding``, ``labour``): what the start state and the biology allow.
+    """
+
+    volume: tuple[str, tuple[int, ...]] | None = None
+    volume_weight: float = 1e7
+    start_choice: tuple | None = None
+    shortfall_cap: dict = field(default_factory=dict)
+    fixed: dict = field(default_factory=dict)
+    lift: tuple[str, ...] = ()
+
+
+#: A capacity "without limit" (Question.lift).
+LIFTED = 1e12
 
 #: Constraint families: name -> (one row per, maths, unit of the rows).
 FAMILIES = {
@@ -52,7 +108,11 @@ FAMILIES = {
     "pupal_holding": ("day t", "pupae between larval collection and harvest <= holding",
                       "million pupae"),
     "labour": ("crew, day t", "sum of task hours <= regular hours + overtime", "h"),
-    "orders": ("customer, week w", "ship[c,w] + shortfall[c,w] >= ordered[c,w]", "million"),
+    "orders": ("customer, week w", "ship[c,w] + shortfall[c,w] >= ordered[c,w] (or >= V, or "
+               ">= volume sum_s start_week[s] over the starts that cover w)", "million"),
+    "share": ("customer, week w", "shortfall[c,w] <= share[p(c),w] ordered[c,w] (a short "
+              "week shared pro rata within a priority class)", "million"),
+    "one_start": ("-", "sum_s start_week[s] = 1", "-"),
     "end": ("customer, look-ahead week", "as orders, for the weeks after the horizon that "
             "the colony must still serve", "million"),
     "shipping": ("week w", "sum_c ship[c,w] <= yield sum release harvested on shipping days "
@@ -77,6 +137,13 @@ class BuiltModel:
     @property
     def blocks(self):
         return self.model.blocks
+
+    def asked(self, x: np.ndarray) -> np.ndarray:
+        """Volume each order cell asks for in the plan ``x`` [million], in the order of
+        ``constants['order_cells']``: the data's, or the question's volume variable, or
+        the chosen start's."""
+        return np.array([b - float(np.dot(vals, x[cols])) if len(cols) else b
+                         for cols, vals, b in self.constants["asked"]], float)
 
     @property
     def families(self):
@@ -129,7 +196,8 @@ class _Rows:
         return np.concatenate(self.r), np.concatenate(self.c), np.concatenate(self.v)
 
 
-def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
+def build_model(data: PlanData, *, relax: bool = False,
+                question: Question | None = None) -> BuiltModel:
     """Build the programme.
 
     Parameters
@@ -137,7 +205,11 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
     data : PlanData
     relax : bool
         Drop integrality (the LP relaxation).
+    question : Question, optional
+        What an answer changes (a volume variable, a chosen start, capped shortfalls,
+        fixed variables).
     """
+    q = question or Question()
     scn = data.scenario
     m = LinearModel(f"broodline_{data.mode}")
     n = data.n_days
@@ -385,15 +457,86 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
                  resource="crew hours", description=FAMILIES["labour"][1])
 
     # -- orders and the look-ahead ('end') ----------------------------------------------
+    vol = start = None
+    if q.volume is not None:
+        vol = m.add_block("volume", [()], 0, np.inf, False, "million/week")
+        m.add_cost("volume", [vol.offset], [-q.volume_weight])
+    if q.start_choice is not None:
+        _, _, _, firsts, _ = q.start_choice
+        start = m.add_block("start_week", [(int(w),) for w in firsts], 0, 1, integer,
+                            "binary", phase=0)
+        m.add_family("one_start", [()], "==", np.zeros(start.size),
+                     start.offset + np.arange(start.size), np.ones(start.size), [1.0],
+                     description=FAMILIES["one_start"][1])
+        m.add_cost("start_week", start.offset + np.arange(start.size),
+                   [q.start_choice[4] * (w - firsts[0]) for w in firsts])
+
+    def asked(c: int, w: int):
+        """(extra columns, coefficients, rhs) of the order row of customer c, week w."""
+        name, week = data.customers[c], w + 1
+        if vol is not None and name == q.volume[0] and week in q.volume[1]:
+            return [vol.offset], [-1.0], 0.0
+        if start is not None and name == q.start_choice[0]:
+            _, volume, length, firsts, _ = q.start_choice
+            on = [k for k, f in enumerate(firsts) if f <= week < f + length]
+            return list(start.offset + np.array(on, np.int64)), [-volume] * len(on), 0.0
+        return [], [], float(data.ordered[c, w])
+
+    asked_terms: list = [None] * len(order_cells)
     for name, weeks in (("orders", range(data.report_weeks)),
                         ("end", range(data.report_weeks, data.n_weeks))):
         cells = [(i, c, w) for i, (c, w) in enumerate(order_cells) if w in weeks]
         fam = _Rows()
+        rhs = []
         for k_, (i, c, w) in enumerate(cells):
-            fam.add([k_, k_], [ship.offset + i, short.offset + i], [1.0, 1.0])
+            cols, vals, b = asked(c, w)
+            asked_terms[i] = (np.array(cols, np.int64), np.array(vals, float), b)
+            fam.add([k_] * (2 + len(cols)), [ship.offset + i, short.offset + i] + cols,
+                    [1.0, 1.0] + vals)
+            rhs.append(b)
         m.add_family(name, [(data.customers[c], w + 1) for _, c, w in cells], ">=",
-                     *fam.arrays(), [data.ordered[c, w] for _, c, w in cells],
-                     unit="million", description=FAMILIES[name][1])
+                     *fam.arrays(), rhs, unit="million", description=FAMILIES[name][1])
+    if vol is not None:
+        for i, lab in enumerate(short.labels):
+            if lab[0] == q.volume[0] and lab[1] in q.volume[1]:
+                short.ub[i] = 0.0
+    for i, lab in enumerate(short.labels):
+        if lab in q.shortfall_cap:
+            short.ub[i] = max(float(q.shortfall_cap[lab]), 0.0)
+
+    # -- priorities: each class's shortfall priced above all classes below together, and
+    # a short week shared pro rata within a class --------------------------------------
+    prio = np.asarray(data.priority, int) if len(data.customers) else np.zeros(0, int)
+    raw = np.array([data.shortfall_price[c, w] for c, w in order_cells], float)
+    cell_prio = np.array([prio[c] for c, _ in order_cells], int)
+    price = raw.copy()
+    below = 0.0  # the dearest effective price of the classes below [currency/million]
+    for p_ in sorted(set(cell_prio.tolist()), reverse=True):
+        sel = cell_prio == p_
+        factor = max(1.0, PRIORITY_STEP * below / float(raw[sel].min())) if below else 1.0
+        price[sel] = raw[sel] * factor
+        below = float(price[sel].max())
+    groups: dict[tuple, list[int]] = {}
+    for i, (c, w) in enumerate(order_cells):
+        groups.setdefault((int(prio[c]), w), []).append(i)
+    shared = [(key, cells) for key, cells in sorted(groups.items()) if len(cells) > 1]
+    if shared:
+        share = m.add_block("share", [(p, w + 1) for (p, w), _ in shared], 0, 1, False, "-")
+        fam = _Rows()
+        labels, k_ = [], 0
+        cost = []
+        for g, ((p, w), cells) in enumerate(shared):
+            for i in cells:
+                c = order_cells[i][0]
+                fam.add([k_, k_], [short.offset + i, share.offset + g],
+                        [1.0, -float(data.ordered[c, w])])
+                labels.append((data.customers[c], w + 1))
+                k_ += 1
+            cost.append(SHARE_WEIGHT * float(min(price[i] for i in cells)) *
+                        float(sum(data.ordered[order_cells[i][0], w] for i in cells)))
+        m.add_family("share", labels, "<=", *fam.arrays(), np.zeros(len(labels)),
+                     unit="million", description=FAMILIES["share"][1])
+        m.add_cost("share", share.offset + np.arange(share.size), cost)
 
     # -- shipping: sum_c ship[c,w] - yield/1e6 sum release in week w <= 0 ---------------
     fam = _Rows()
@@ -449,14 +592,29 @@ def build_model(data: PlanData, *, relax: bool = False) -> BuiltModel:
                            for d in deltas] for t in days], float)
     m.add_cost("cage_days", cage_cols.reshape(-1), costs.per_cage_day * in_window.reshape(-1))
     m.add_cost("overtime", oc, np.full(nc * n, costs.overtime_per_hour))
-    m.add_cost("shortfall", short.offset + np.arange(short.size),
-               [data.shortfall_price[c, w] for c, w in order_cells])
+    m.add_cost("shortfall", short.offset + np.arange(short.size), price)
     if data.options:
         weeks_ready = [max(0, (n - max(r, 0)) / 7.0) for r in data.option_ready]
         m.add_cost("expansion", buy.offset + np.arange(buy.size),
                    [o.weekly_cost * wk for o, wk in zip(data.options, weeks_ready)])
     m.c0 = costs.per_cage_day * float(occ0.sum())
+    for fam_name in q.lift:
+        if fam_name in m.families:
+            m.families[fam_name].b[:] = LIFTED
+        if fam_name in ("cage_slots",):
+            m.blocks["cages"].ub[:] = np.inf
+        if fam_name in ("racks", "diet"):
+            m.blocks["trays"].ub[:] = np.inf
+        if fam_name == "labour":
+            m.blocks["overtime"].ub[:] = np.inf
+    for block_name, values in q.fixed.items():
+        blk = m.blocks[block_name]
+        for lab, v in values.items():
+            i = blk.index.get(lab)
+            if i is not None:
+                blk.lb[i] = blk.ub[i] = float(v)
     const["order_cells"] = order_cells
+    const["asked"] = asked_terms
     const["cohorts"] = cohorts
     const["seed_ok"] = seed_ok
     const["cage_cols"] = cage_cols

@@ -91,6 +91,8 @@ class PlanData:
     customers: list[str]
     ordered: np.ndarray            # (customers, weeks) [million/week]
     shortfall_price: np.ndarray    # (customers, weeks) [currency/million]
+    priority: np.ndarray           # (customers,) priority class, 1 served first [-]
+    booked: np.ndarray             # (customers,) an order of the book, not a quote or target
     # start state and expansion
     start: StartBatches
     options: list                  # ExpansionOption
@@ -195,7 +197,8 @@ def _by_day(weekly, weekday, holiday, holiday_value):
 
 
 def _common(scn: Scenario, mode, n_days, report_days, start_date, weekday, holiday, can_ship,
-            n_weeks, report_weeks, customers, ordered, price, start, use_expansion):
+            n_weeks, report_weeks, customers, ordered, price, start, use_expansion,
+            priority, booked=None):
     col = scn.colony
     re_ = col.rearing
     st = col.stages
@@ -224,7 +227,9 @@ def _common(scn: Scenario, mode, n_days, report_days, start_date, weekday, holid
         kitchen=_by_day(scn.kitchen.diet_kg, weekday, holiday, scn.kitchen.holiday_kg),
         pupal_cap=f.pupal_holding, crews=crews, crew_hours=crew_hours, overtime_limit=overtime,
         task_crew=task_crew, n_weeks=n_weeks, report_weeks=report_weeks, customers=customers,
-        ordered=ordered, shortfall_price=price, start=start, options=options,
+        ordered=ordered, shortfall_price=price, priority=np.asarray(priority, int),
+        booked=np.ones(len(customers), bool) if booked is None else np.asarray(booked, bool),
+        start=start, options=options,
         option_ready=ready, use_expansion=use_expansion)
 
 
@@ -283,8 +288,11 @@ def compile_horizon(scn: Scenario, start: StartBatches | None = None,
             a = book_scn.week_of(o.first_week)
             b = book_scn.week_of(o.last_week) if o.last_week is not None else n_weeks
             price[i, max(a, 1) - 1:min(b, n_weeks)] = o.shortfall_per_million
+    prio = book_scn.priorities()
     return _common(scn, "horizon", n_days, 7 * weeks, s0, weekday, holiday, can_ship, n_weeks,
-                   weeks, customers, ordered, price, start, use_expansion)
+                   weeks, customers, ordered, price, start, use_expansion,
+                   [prio[c] for c in customers],
+                   [c in {o.customer for o in scn.orders} for c in customers])
 
 
 def compile_cycle(scn: Scenario, weekly_volume: float, cycle_days: int | None = None,
@@ -310,7 +318,7 @@ def compile_cycle(scn: Scenario, weekly_volume: float, cycle_days: int | None = 
     ordered = np.full((1, n_weeks), float(weekly_volume))
     price = np.full((1, n_weeks), scn.costs.shortfall_per_million)
     data = _common(scn, "cycle", p, p, None, weekday, holiday, can_ship, n_weeks, n_weeks,
-                   ["standard week"], ordered, price, StartBatches(source="none"), False)
+                   ["standard week"], ordered, price, StartBatches(source="none"), False, [1])
     if all_days_alike:
         data.can_ship = np.ones(p, bool)
         data.kitchen = np.full(p, data.kitchen.mean())

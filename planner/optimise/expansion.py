@@ -37,7 +37,8 @@ from planner.scenario.schema import Order, Scenario
 __all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "TARGET_PRICE"]
 
 TARGET_CUSTOMER = "growth target"
-#: Price of an unmet million of the target [currency]: above any option's cost.
+#: Price of an unmet million of the target [currency]: above any option's cost (the
+#: booked orders, a priority class above, are priced above it in turn).
 TARGET_PRICE = 1e7
 
 
@@ -67,7 +68,10 @@ class ExpansionResult:
                 "delivered_million": self.delivered, "shortfall_million": self.shortfall,
                 "meets_target": self.shortfall <= 1e-3, "status": self.plan.info.status,
                 "time_limited": self.plan.info.time_limited,
-                "currency": self.plan.scenario.costs.currency, "seconds": self.seconds}
+                "booked_shortfall_million": self.plan.booked_shortfall(),
+                "customers": self.plan.customer_table(),
+                "currency": self.plan.scenario.costs.currency, "seconds": self.seconds,
+                "solves": 2}
 
 
 def _top_up(scn: Scenario, target: float, from_week: int, weeks: int) -> list[Order]:
@@ -75,11 +79,13 @@ def _top_up(scn: Scenario, target: float, from_week: int, weeks: int) -> list[Or
     book = scn.weekly_orders(weeks)
     per_week = [sum(v[w] for v in book.values()) for w in range(weeks)]
     out = []
+    # the target is served after every booked order: it never takes a booked pupa
+    lowest = max([o.priority for o in scn.orders], default=1) + 1
     for w in range(from_week, weeks + 1):
         extra = target - per_week[w - 1]
         if extra > 1e-9:
             out.append(Order(customer=TARGET_CUSTOMER, weekly_volume=extra, first_week=w,
-                             last_week=w))
+                             last_week=w, priority=lowest))
     return out
 
 

@@ -16,6 +16,7 @@ import pandas as pd
 from planner.optimise.build import PUPAE_UNIT, BuiltModel
 from planner.optimise.data import PlanData
 from planner.optimise.solve import Solution, SolveInfo
+from planner.scenario.schema import WEEKDAYS
 
 __all__ = ["PlanResult", "read_back", "operating_cost", "TASK_ORDER"]
 
@@ -24,6 +25,9 @@ TASK_ORDER = ["diet_mixing", "egg_collection", "seeding", "larval_collection",
               "harvest_packing", "cage_loading", "cage_discard", "cage_care"]
 
 SATURATED = 0.995  #: utilisation at or above which a resource counts as full [-]
+#: A shortfall below this share of the ordered volume is no shortfall [-]: pupae counts
+#: are estimates far coarser than this.
+FILL_TOLERANCE = 1e-3
 
 
 @dataclass
@@ -67,6 +71,27 @@ class PlanResult:
         """Product delivered over the reported weeks [million]."""
         return float(self.weekly["released"].sum())
 
+    def customer_table(self) -> list[dict]:
+        """Per customer over the reported weeks: priority class, ordered, released and
+        shortfall [million]."""
+        data, w = self.data, self.weekly
+        out = []
+        for i, c in enumerate(data.customers):
+            sel = w["customer"] == c
+            out.append({"customer": c, "priority": int(data.priority[i]),
+                        "booked": bool(data.booked[i]),
+                        "ordered": float(w.loc[sel, "ordered"].sum()),
+                        "released": float(w.loc[sel, "released"].sum()),
+                        "shortfall": float(w.loc[sel, "shortfall"].sum())})
+        return out
+
+    def booked_shortfall(self) -> float:
+        """Shortfall of the book's own orders over the reported weeks, never of a quote
+        or a growth target [million]."""
+        booked = {c for c, b in zip(self.data.customers, self.data.booked) if b}
+        w = self.weekly
+        return float(w.loc[w["customer"].isin(booked), "shortfall"].sum())
+
     def summary(self) -> dict:
         """Headline figures (the `--json` summary of `broodline plan`)."""
         info = self.info
@@ -87,6 +112,8 @@ class PlanResult:
             "released_million": released, "ordered_million": float(self.weekly["ordered"].sum()),
             "shortfall_million": float(self.weekly["shortfall"].sum()),
             "weeks": weeks, "bottlenecks": self.bottlenecks, "shortfalls": self.shortfalls,
+            "booked_shortfall_million": self.booked_shortfall(),
+            "customers": self.customer_table(),
             "discard_ages_used": sorted(int(a) for a in self.cage_batches.loc[
                 self.cage_batches["source"] == "plan", "discard_age"].unique()),
             "harvest_ages_used": sorted(int(a) for a in self.harvests.loc[
@@ -276,11 +303,12 @@ def _weekly(data, built, x) -> pd.DataFrame:
     ship = built.blocks["ship"]
     short = built.blocks["shortfall"]
     cells = built.constants["order_cells"]
+    asked = built.asked(x)
     rows = []
     for i, (c, w) in enumerate(cells):
         rows.append({"week": w + 1, "customer": data.customers[c],
                      "week_start": data.date(7 * w) if data.mode == "horizon" else None,
-                     "ordered": float(data.ordered[c, w]),
+                     "ordered": float(asked[i]),
                      "released": float(ship.values(x)[i]),
                      "shortfall": float(short.values(x)[i]),
                      "lookahead": w >= data.report_weeks})
@@ -290,6 +318,7 @@ def _weekly(data, built, x) -> pd.DataFrame:
     df["released"] = np.minimum(df["released"], df["ordered"])
     df["shortfall"] = np.maximum(df["ordered"] - df["released"], 0.0)
     df.loc[df["shortfall"] < 1e-9, "shortfall"] = 0.0
+    df = df[df["ordered"] > 1e-12]  # weeks a chosen start leaves out
     return (df[~df["lookahead"]].drop(columns="lookahead").reset_index(drop=True),
             df[df["lookahead"]].drop(columns="lookahead").reset_index(drop=True))
 
@@ -446,20 +475,84 @@ def _date_text(data, t: int) -> str:
     return data.day_label(t)
 
 
+def _calendar_losses(data, w0: int, lo: int) -> dict:
+    """What the calendar takes from the plan week starting on day ``w0`` [day]: its
+    shipping days and the holidays among its days, and the kitchen's shut days among the
+    seeding days that feed it (from ``lo`` [day], the first day that feeds the week)."""
+    n = data.n_days
+    week = np.arange(w0, min(w0 + 7, n))
+    ship = [int(t) for t in week if data.can_ship[t]]
+    holidays = [int(t) for t in week if data.holiday[t]]
+    # shipping days that a usual week has and a holiday takes away
+    ship_days = {WEEKDAYS.index(d) for d in data.scenario.calendar.shipping_days}
+    ship_lost = [t for t in holidays if data.weekday[t] in ship_days and not data.can_ship[t]]
+    # the seeding days whose cohorts ship in the week: t - L + theta in the week
+    s_lo = max(w0 + data.seed_lag - max(data.harvest_ages), lo, 0)
+    s_hi = min(w0 + 6 + data.seed_lag - min(data.harvest_ages), n - 1)
+    seeding = np.arange(s_lo, s_hi + 1)
+    cap = data.kitchen + (data.option_adds("diet_kg").sum(axis=0) if data.options else 0.0)
+    shut = [int(t) for t in seeding if cap[t] <= 0]
+    usual = np.array(data.scenario.kitchen.diet_kg.as_list(), float)
+    shut_holidays = [t for t in shut if data.holiday[t] and usual[data.weekday[t]] > 0]
+    return {"shipping_days": ship, "holidays": holidays, "shipping_days_lost": ship_lost,
+            "feeding_days": int(seeding.size), "kitchen_shut": shut,
+            "kitchen_shut_holidays": shut_holidays}
+
+
 def diagnose_shortfalls(res: PlanResult) -> list[dict]:
-    """Which weeks and customers are short, by how much, and what was full in the days
-    that feed them (from the seeding of the first cohort that could ship that week to
-    the week's end)."""
+    """Which weeks and customers are short, by how much, and why.
+
+    A shortfall below :data:`FILL_TOLERANCE` of the ordered volume is no shortfall (pupae
+    counts are estimates far coarser) and is not listed. Each listed shortfall has a
+    ``cause``:
+
+    - ``"calendar"``: the week has no shipping day; or holidays took shipping days from
+      the week or shut the kitchen on days that feed it, and the customer's weeks
+      without such holidays are short by less than half as much (relative to the
+      order);
+    - ``"capacity"``: some resource was full in the days that feed the week (from the
+      seeding of the first cohort that could ship that week to the week's end); a day
+      whose capacity is 0 (the kitchen shut, a crew off) is never "full": the kitchen's
+      shut days are a calendar note;
+    - ``"eggs"``: no resource was full, but every egg laid was seeded;
+    - ``"lead time"``: nothing was full: the start state or the egg-to-harvest lead time
+      limits the week.
+    """
     data = res.data
     out = []
     util = res.utilisation
+    daily = res.daily
     lead = max(data.harvest_ages) - data.seed_lag
-    for row in res.weekly.itertuples():
-        if row.shortfall <= 1e-6:
-            continue
+    rows = [row for row in res.weekly.itertuples()
+            if row.shortfall > max(FILL_TOLERANCE * row.ordered, 1e-9)]
+    losses = {}
+    for row in res.weekly.drop_duplicates("week").itertuples():
+        w0 = 7 * (row.week - 1)
+        losses[row.week] = _calendar_losses(data, w0, max(w0 - lead, 0))
+
+    def lost(week: int) -> bool:
+        c = losses[week]
+        return (not c["shipping_days"] or bool(c["shipping_days_lost"])
+                or bool(c["kitchen_shut_holidays"]))
+
+    for row in rows:
         w0 = 7 * (row.week - 1)
         lo, hi = max(w0 - lead, 0), w0 + 6
-        win = util[(util["day"] >= lo) & (util["day"] <= hi)]
+        cal = losses[row.week]
+        head = (f"Week {row.week}" + (f" (from {row.week_start})" if row.week_start else "")
+                + f": {row.customer} is short by {row.shortfall:.3g} million of "
+                f"{row.ordered:.3g} ordered.")
+        item = {"week": int(row.week), "customer": row.customer,
+                "ordered": float(row.ordered), "shortfall": float(row.shortfall),
+                "saturated": [], "calendar": _calendar_json(data, cal)}
+        if not cal["shipping_days"]:
+            hol = ", ".join(_date_text(data, t) for t in cal["holidays"])
+            item.update(cause="calendar", text=head + f" There is no shipping day in week "
+                        f"{row.week}" + (f" (holidays {hol})" if hol else "")
+                        + ": nothing can be received that week.")
+            out.append(item)
+            continue
+        win = util[(util["day"] >= lo) & (util["day"] <= hi) & (util["available"] > 0)]
         saturated = []
         for resource, g in win.groupby("resource", sort=False):
             full = int((g["utilisation"] >= SATURATED).sum())
@@ -467,32 +560,73 @@ def diagnose_shortfalls(res: PlanResult) -> list[dict]:
                 saturated.append({"resource": resource, "days_full": full,
                                   "days": int(len(g))})
         saturated.sort(key=lambda s: -s["days_full"])
-        eggs_tight = int(((res.daily["eggs_discarded"] <= 1e-6 * np.maximum(
-            res.daily["eggs_collected"], 1)) & (res.daily["day"] >= lo - data.seed_lag) &
-            (res.daily["day"] <= hi - data.seed_lag) & (res.daily["eggs_collected"] > 0)).sum())
-        words = (f"Week {row.week}" + (f" (from {row.week_start})" if row.week_start else "")
-                 + f": {row.customer} is short by {row.shortfall:.3g} million of "
-                 f"{row.ordered:.3g} ordered.")
+        item["saturated"] = saturated
+        eggs_tight = int(((daily["eggs_discarded"] <= 1e-6 * np.maximum(
+            daily["eggs_collected"], 1)) & (daily["day"] >= lo - data.seed_lag) &
+            (daily["day"] <= hi - data.seed_lag) & (daily["eggs_collected"] > 0)).sum())
+        notes = []
+        if cal["shipping_days_lost"]:
+            notes.append("holidays took shipping days "
+                         + ", ".join(_date_text(data, t) for t in cal["shipping_days_lost"])
+                         + f" (left: {len(cal['shipping_days'])})")
+        kitchen_full = any(x["resource"] == "diet kitchen" for x in saturated)
+        if cal["kitchen_shut_holidays"] or (cal["kitchen_shut"] and kitchen_full):
+            text = (f"kitchen shut on {len(cal['kitchen_shut'])} of the "
+                    f"{cal['feeding_days']} days that feed it")
+            if cal["kitchen_shut_holidays"]:
+                text += " (holidays " + ", ".join(
+                    _date_text(data, t) for t in cal["kitchen_shut_holidays"]) + ")"
+            notes.append(text)
         feed = f" In the days that feed it ({_date_text(data, lo)} to {_date_text(data, hi)})"
         if saturated:
-            words += feed + ": " + "; ".join(
+            cause = "capacity"
+            words = feed + ": " + "; ".join(
                 f"{s['resource']} full on {s['days_full']} of {s['days']} days"
                 for s in saturated[:4]) + "."
         elif eggs_tight:
-            words += feed + f": every egg was used on {eggs_tight} days (the cages limit)."
+            cause = "eggs"
+            words = feed + f": every egg was used on {eggs_tight} days (the cages limit)."
         else:
-            words += (feed + " no capacity was full: the start state or the lead time "
-                      "(eggs laid before the plan) limits this week.")
-        out.append({"week": int(row.week), "customer": row.customer,
-                    "ordered": float(row.ordered), "shortfall": float(row.shortfall),
-                    "saturated": saturated, "text": words})
+            cause = "lead time"
+            words = (feed + " no capacity was full: the start state or the lead time "
+                     "(eggs laid before the plan) limits this week.")
+        if lost(row.week) and _worse_than_usual(res, row, lost):
+            cause = "calendar"
+        if notes:
+            words += " Calendar: " + "; ".join(notes) + "."
+        item.update(cause=cause, text=head + words)
+        out.append(item)
     return out
 
 
+def _worse_than_usual(res: PlanResult, row, lost) -> bool:
+    """Whether the customer's weeks that the holidays leave alone are short by less than
+    half this week's share of its order [-]."""
+    w = res.weekly
+    mine = w[(w["customer"] == row.customer) & (w["ordered"] > 0)]
+    usual = mine[[not lost(int(k)) for k in mine["week"]]]
+    share = row.shortfall / row.ordered
+    if usual.empty:
+        return True
+    return float((usual["shortfall"] / usual["ordered"]).mean()) < 0.5 * share
+
+
+def _calendar_json(data, cal: dict) -> dict:
+    def label(days):
+        return [_date_text(data, t) for t in days]
+
+    return {"shipping_days": label(cal["shipping_days"]), "holidays": label(cal["holidays"]),
+            "shipping_days_lost": label(cal["shipping_days_lost"]),
+            "feeding_days": cal["feeding_days"], "kitchen_shut": label(cal["kitchen_shut"]),
+            "kitchen_shut_holidays": label(cal["kitchen_shut_holidays"])}
+
+
 def describe_bottlenecks(res: PlanResult, top: int = 5) -> list[str]:
-    """The resources that limit the plan most, in plain words."""
+    """The resources that limit the plan most, in plain words. A day whose capacity is 0
+    (the kitchen shut, a crew off) is not counted as full, nor among the days."""
     data = res.data
-    util = res.utilisation[res.utilisation["day"] < data.report_days]
+    util = res.utilisation[(res.utilisation["day"] < data.report_days)
+                           & (res.utilisation["available"] > 0)]
     prices = res.shadow_prices
     cur = data.scenario.costs.currency
     daily = res.horizon_daily

@@ -32,7 +32,28 @@ from planner.optimise.model import LinearModel, solver_name
 
 pulp.set_v4_migration_warnings(False)
 
-__all__ = ["SolveSettings", "SolveInfo", "Solution", "solve", "available_solvers", "to_pulp"]
+__all__ = ["SolveSettings", "SolveInfo", "Solution", "solve", "available_solvers", "to_pulp",
+           "default_solver", "CLOSED_GAP"]
+
+#: A relative gap at or below this counts as closed [-]: CBC's log rounds its bound to
+#: about ten digits, so a proven optimum can show a gap of 1e-12.
+CLOSED_GAP = 1e-9
+#: Share of the time limit that phase 0 (options, policy switches) may use [-].
+PHASE0_SHARE = 0.3
+#: Share of the time limit that phase 1 (cages, trays relaxed) may use [-].
+PHASE1_SHARE = 0.7
+#: Share of the time limit for phase 2a (trays, cages fixed) [-], at least
+#: :data:`PHASE2A_MIN_SECONDS`.
+PHASE2A_SHARE = 0.1
+PHASE2A_MIN_SECONDS = 5.0
+#: A solver call that ran for this share of its time limit or more hit the limit [-].
+LIMIT_HIT_SHARE = 0.97
+
+
+def default_solver() -> str:
+    """HiGHS when it is installed (it solves the demo two to four times faster than CBC,
+    see bench/plan.py), else CBC (bundled with PuLP)."""
+    return "highs" if "highs" in available_solvers() else "cbc"
 
 
 @dataclass(frozen=True)
@@ -42,7 +63,7 @@ class SolveSettings:
     Attributes
     ----------
     solver : str
-        ``"cbc"`` or ``"highs"``.
+        ``"highs"``, ``"cbc"`` or ``"auto"`` (HiGHS when installed, else CBC).
     time_limit : float
         [s] wall clock.
     relative_gap : float
@@ -60,7 +81,7 @@ class SolveSettings:
         (for objectives whose optimum is near 0, where a relative gap means nothing).
     """
 
-    solver: str = "cbc"
+    solver: str = "auto"
     time_limit: float = 120.0
     relative_gap: float = 0.005
     threads: int = 1
@@ -68,6 +89,10 @@ class SolveSettings:
     log_path: str | None = None
     strategy: str = "two-phase"
     absolute_gap: float | None = None
+
+    def __post_init__(self):
+        if self.solver == "auto":
+            object.__setattr__(self, "solver", default_solver())
 
     def for_lp(self, duals: bool = False) -> "SolveSettings":
         """The same solver, threads and time limit, for a linear programme (solved to
@@ -91,6 +116,7 @@ class SolveInfo:
     seconds: float
     message: str = ""
     dual_status: str | None = None
+    calls: int = 0  #: solver calls made
 
     @property
     def has_plan(self) -> bool:
@@ -221,42 +247,103 @@ def _cbc_bound(log_path: str | None) -> float | None:
 
 def _check_available(name: str) -> None:
     if name not in available_solvers():
-        extra = " (install it with: pip install 'broodline[highs]')" if name == "highs" else ""
+        extra = " (install it with: pip install highspy)" if name == "highs" else ""
         raise SolverError(f"the solver {name!r} is not available here{extra}")
 
 
-def _run(prob, variables, model, settings: SolveSettings, tmp: str, log: str,
-         time_limit: float, gap: float | None, warm: bool = False):
-    """One solver call: (PuLP status, solution status, x, bound, seconds). With ``warm``,
-    CBC starts from the variables' current values."""
-    run = SolveSettings(solver=settings.solver, time_limit=max(time_limit, 1.0),
-                        relative_gap=gap if gap is not None else settings.relative_gap,
-                        threads=settings.threads, duals=False,
-                        absolute_gap=settings.absolute_gap)
-    solver = _make_solver(run, tmp, log, warm=warm)
-    t0 = time.perf_counter()
-    try:
-        with _quiet():
-            prob.solve(solver)
-    except pulp.PulpSolverError as exc:
-        raise SolverError(f"the {settings.solver} solver failed: {exc}") from None
-    seconds = time.perf_counter() - t0
-    x = np.array([v.varValue if v.varValue is not None else 0.0 for v in variables])
-    integ = np.array([v.cat == pulp.LpInteger for v in variables])
-    x[integ] = np.round(x[integ])
-    bound = None
+@dataclass
+class _Call:
+    """What one solver call returned."""
+
+    status: str            # PuLP's status word
+    sol_status: int        # PuLP's solution status
+    x: np.ndarray
+    bound: float | None    # the solver's best bound (MILP), objective units
+    seconds: float
+    hit: bool              # the call stopped at its time limit
+
+
+_CBC_TIME = re.compile(r"Stopped on time|time limit", re.I)
+
+
+def _limit_hit(prob, settings: SolveSettings, log: str | None, seconds: float,
+               limit: float) -> bool:
+    """Whether a solver call stopped at its time limit: the solver's own word where it
+    gives one, else its run time against the limit."""
     if settings.solver == "highs":
         with contextlib.suppress(Exception):
-            bound = float(prob.solverModel.getInfo().mip_dual_bound)
-            if not math.isfinite(bound):
-                bound = None
-    else:
-        bound = _cbc_bound(log)
-    if bound is not None:
-        bound += float(model.c0)  # the solvers are not given the objective's constant
-    if not integ.any():
-        bound = None  # an LP's optimum is its own bound; set by the caller
-    return pulp.LpStatus[prob.status], prob.sol_status, x, bound, seconds
+            return "TimeLimit" in str(prob.solverModel.getModelStatus())
+    elif log and os.path.exists(log):
+        with contextlib.suppress(OSError):
+            tail = open(log, encoding="utf-8", errors="replace").read()[-4000:]
+            if "Result -" in tail:
+                return bool(_CBC_TIME.search(tail.split("Result -")[-1].splitlines()[0]))
+    return seconds >= LIMIT_HIT_SHARE * limit
+
+
+class _Runner:
+    """Solver calls of one :func:`solve` within its time budget, counted."""
+
+    def __init__(self, prob, variables, model, settings: SolveSettings, tmp: str, log: str):
+        self.prob, self.variables, self.model = prob, variables, model
+        self.settings, self.tmp, self.log = settings, tmp, log
+        self.t0 = time.perf_counter()
+        self.hit = False
+        self.calls = 0
+
+    def remaining(self) -> float:
+        """Time left of the budget [s]."""
+        return self.settings.time_limit - (time.perf_counter() - self.t0)
+
+    def elapsed(self) -> float:
+        return time.perf_counter() - self.t0
+
+    def call(self, time_limit: float, gap: float | None, warm: bool = False,
+             suffix: str = "") -> _Call:
+        """One solver call (at most the time left); with ``warm``, CBC starts from the
+        variables' current values."""
+        s = self.settings
+        limit = max(min(time_limit, self.remaining()), 1.0)
+        run = SolveSettings(solver=s.solver, time_limit=limit,
+                            relative_gap=gap if gap is not None else s.relative_gap,
+                            threads=s.threads, duals=False, absolute_gap=s.absolute_gap)
+        log = self.log + suffix
+        solver = _make_solver(run, self.tmp, log, warm=warm)
+        t0 = time.perf_counter()
+        try:
+            with _quiet():
+                self.prob.solve(solver)
+        except pulp.PulpSolverError as exc:
+            raise SolverError(f"the {s.solver} solver failed: {exc}") from None
+        seconds = time.perf_counter() - t0
+        self.calls += 1
+        variables = self.variables
+        x = np.array([v.varValue if v.varValue is not None else 0.0 for v in variables])
+        integ = np.array([v.cat == pulp.LpInteger for v in variables])
+        x[integ] = np.round(x[integ])
+        bound = None
+        if s.solver == "highs":
+            with contextlib.suppress(Exception):
+                bound = float(self.prob.solverModel.getInfo().mip_dual_bound)
+                if not math.isfinite(bound):
+                    bound = None
+        else:
+            bound = _cbc_bound(log)
+        if bound is not None:
+            bound += float(self.model.c0)  # the solvers are not given the objective's constant
+        if not integ.any():
+            bound = None  # an LP's optimum is its own bound; set by the caller
+        hit = _limit_hit(self.prob, s, log, seconds, limit)
+        self.hit |= hit
+        return _Call(pulp.LpStatus[self.prob.status], self.prob.sol_status, x, bound,
+                     seconds, hit)
+
+    def objective(self, x: np.ndarray) -> float:
+        return float(self.model.c @ x + self.model.c0)
+
+    def has_plan(self, c: _Call) -> bool:
+        return c.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible) or \
+            (c.status == "Optimal" and c.sol_status == 1)
 
 
 def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
@@ -266,12 +353,14 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
     ``initial``: a whole plan of the same model (values of every variable) that CBC starts
     from (ignored by HiGHS, whose PuLP interface takes no start).
 
-    Strategy ``"two-phase"`` (default): the integer blocks marked ``phase=2`` (larval
-    trays, whose counts are large and whose LP values are nearly whole) are relaxed while
-    the solver settles the other integers (cages, options); then those are fixed and the
-    phase-2 integers are solved for. The final plan is whole in every integer; its gap is
-    measured against the first phase's bound, which bounds the full problem from below.
-    ``"direct"`` solves the full problem at once.
+    Strategy ``"two-phase"`` (default): the integer blocks marked ``phase=0`` (options
+    bought, policy switches) are settled first with every other integer relaxed; then the
+    blocks marked ``phase=2`` (larval trays, whose counts are large and whose LP values
+    are nearly whole) are relaxed while the solver settles the other integers (cages);
+    then those are fixed and the phase-2 integers are solved for. Whenever the gap of the
+    best whole plan against the best valid bound is still open, the whole problem is
+    solved last, started from that plan, in the time left. ``"direct"`` solves the full
+    problem at once. ``time_limit`` bounds all the calls together.
     """
     _check_available(settings.solver)
     prob, variables, rows = to_pulp(model)
@@ -281,35 +370,38 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
         phase[b.offset:b.offset + b.size] = b.phase
     phase2 = integ & (phase == 2)
     phase0 = integ & (phase == 0)
-    two = settings.strategy == "two-phase" and phase2.any() and (integ & ~phase2).any()
+    two = settings.strategy == "two-phase" and integ.any() and (
+        (phase2.any() and (integ & ~phase2).any()) or phase0.any())
     start = np.asarray(initial, float) if initial is not None and settings.solver == "cbc" \
         else None
     warm = _set_start(variables, start)
     with tempfile.TemporaryDirectory(prefix="broodline-solve-") as tmp:
         log = settings.log_path or os.path.join(tmp, "solver.log")
+        runner = _Runner(prob, variables, model, settings, tmp, log)
         if not two:
-            status, sol_status, x, bound, seconds = _run(prob, variables, model, settings, tmp,
-                                                         log, settings.time_limit, None,
-                                                         warm=warm)
-            info = _interpret(settings, status, sol_status, x, model, bound, seconds)
-        elif phase0.any():
-            info, x = _with_phase0(prob, variables, model, settings, tmp, log, integ, phase0,
-                                   phase2, start=start)
+            c = runner.call(settings.time_limit, None, warm=warm)
+            info = _interpret(settings, c, model, runner)
+            x = c.x
         else:
-            info, x = _two_phase(prob, variables, model, settings, tmp, log, integ, phase2,
-                                 start=start)
+            info, x = _phased(runner, integ, phase0, phase2, start)
         if initial is not None:
             info, x = _keep_start(model, np.asarray(initial, float), info, x, settings)
         duals: dict[str, np.ndarray] = {}
         relaxed: dict[str, np.ndarray] = {}
-        if settings.duals and info.has_plan:
+        if settings.duals and info.has_plan and runner.remaining() > 1.0:
+            # the shadow prices share the time limit: each LP gets what is left
+            left = dataclasses.replace(settings, time_limit=runner.remaining())
             duals, dual_status = _fixed_integer_duals(model, prob, variables, rows, x,
-                                                      settings, tmp)
+                                                      left, tmp)
             info.dual_status = dual_status
-            if integ.any():
-                relaxed = _relaxed_duals(model, settings, tmp)
-            else:
+            if integ.any() and runner.remaining() > 1.0:
+                relaxed = _relaxed_duals(model, dataclasses.replace(
+                    settings, time_limit=runner.remaining()), tmp)
+            elif not integ.any():
                 relaxed = duals
+        elif settings.duals and info.has_plan:
+            info.dual_status = "not computed: no time left"
+    info.calls = runner.calls
     return Solution(model=model, x=x, info=info, duals=duals, relaxed_duals=relaxed)
 
 
@@ -331,10 +423,10 @@ def _keep_start(model: LinearModel, x0: np.ndarray, info: SolveInfo, x: np.ndarr
     bound = info.best_bound
     gap = _gap(obj0, bound)
     limited = _open(obj0, bound, settings)
-    msg = ("the plan the solver was started from; the solver found none better in the "
-           "time limit" + (f" (gap {gap:.2%})" if gap is not None else ""))
+    msg = ("the plan the solver was started from; the solver found none better in "
+           f"{info.seconds:.1f} s" + (f" (gap {gap:.2%})" if gap is not None else ""))
     return SolveInfo(settings.solver, "feasible" if limited else "optimal", not limited,
-                     limited, obj0, bound, gap, info.seconds, msg), x0
+                     limited and info.time_limited, obj0, bound, gap, info.seconds, msg), x0
 
 
 @contextlib.contextmanager
@@ -349,6 +441,19 @@ def _continuous(variables, idx):
             variables[k].cat = pulp.LpInteger
 
 
+@contextlib.contextmanager
+def _fixed(variables, idx, x):
+    """Fix the variables ``idx`` at their values in ``x`` for the duration of the block."""
+    saved = [(variables[k].lowBound, variables[k].upBound) for k in idx]
+    for k in idx:
+        variables[k].lowBound = variables[k].upBound = float(x[k])
+    try:
+        yield saved
+    finally:
+        for k, (lo, hi) in zip(idx, saved):
+            variables[k].lowBound, variables[k].upBound = lo, hi
+
+
 def _set_start(variables, start: np.ndarray | None) -> bool:
     """Give the variables a start plan's values (for CBC's warm start); False if none."""
     if start is None:
@@ -358,157 +463,137 @@ def _set_start(variables, start: np.ndarray | None) -> bool:
     return True
 
 
-def _with_phase0(prob, variables, model, settings, tmp, log, integ, phase0, phase2,
-                 start=None):
-    """Phase 0: the few large choices (options bought, policy binaries) with every other
-    integer relaxed; then, with those fixed, the two-phase solve of the rest. The gap is
-    measured against phase 0's bound, a valid bound of the full problem."""
-    t0 = time.perf_counter()
-    rest = np.flatnonzero(integ & ~phase0)
-    with _continuous(variables, rest):
-        status, sol_status, x0, bound0, t = _run(prob, variables, model, settings, tmp,
-                                                 log + ".0", 0.3 * settings.time_limit,
-                                                 settings.relative_gap / 5,
-                                                 warm=_set_start(variables, start))
-    info0 = _interpret(settings, status, sol_status, x0, model, bound0, t)
-    if not info0.has_plan:
-        return info0, x0
-    fixed = np.flatnonzero(phase0)
-    saved = [(variables[k].lowBound, variables[k].upBound) for k in fixed]
-    for k in fixed:
-        variables[k].lowBound = variables[k].upBound = float(x0[k])
-    left = dataclasses.replace(settings, time_limit=max(settings.time_limit -
-                                                         (time.perf_counter() - t0), 10.0))
-    info, x = _two_phase(prob, variables, model, left, tmp, log, integ & ~phase0, phase2,
-                         outer_bound=info0.best_bound, start=start)
-    for k, (lo, hi) in zip(fixed, saved):
-        variables[k].lowBound, variables[k].upBound = lo, hi
-    info.seconds = time.perf_counter() - t0
-    return info, x
-
-
-def _two_phase(prob, variables, model, settings, tmp, log, integ, phase2, outer_bound=None,
-               start=None):
-    """Phase 1 with the phase-2 integers relaxed; phase 2a with the other integers fixed;
-    phase 2b, if time and gap allow, in the neighbourhood 'keep every unit, add at most
-    one' of phase 1, started from 2a's plan; phase 3, if the gap is still open, the whole
-    problem started from the best whole plan. The best whole plan wins; its gap is
-    measured against the best valid bound (phase 1's or phase 3's)."""
-    first = np.flatnonzero(integ & ~phase2)
+def _phased(r: _Runner, integ, phase0, phase2, start):
+    """The phased strategy of :func:`solve`: (SolveInfo, x)."""
+    s = r.settings
+    budget = s.time_limit
+    variables, model = r.variables, r.model
+    bound = None
+    fixed0 = np.flatnonzero(phase0)
+    x0 = None
+    if phase0.any():
+        with _continuous(variables, np.flatnonzero(integ & ~phase0)):
+            c0 = r.call(PHASE0_SHARE * budget, s.relative_gap / 5,
+                        warm=_set_start(variables, start), suffix=".0")
+        if not r.has_plan(c0):
+            return _interpret(s, c0, model, r), c0.x
+        bound, x0 = c0.bound, c0.x  # a relaxation's bound bounds the full problem
+    best_x, best_obj, inner_bound = None, math.inf, None
+    rest = integ & ~phase0
+    first = np.flatnonzero(rest & ~phase2)
     second = np.flatnonzero(phase2)
-    budget = settings.time_limit
-    t_start = time.perf_counter()
-    with _continuous(variables, second):
-        status, sol_status, x1, bound, t1 = _run(prob, variables, model, settings, tmp, log,
-                                                 0.7 * budget, None,
-                                                 warm=_set_start(variables, start))
-    info1 = _interpret(settings, status, sol_status, x1, model, bound, t1)
-    if not info1.has_plan:
-        return info1, x1
-    saved = [(variables[k].lowBound, variables[k].upBound) for k in first]
-
-    def remaining() -> float:
-        return budget - (time.perf_counter() - t_start)
-
-    best_x, best_obj = None, math.inf
-    for k in first:
-        variables[k].lowBound = variables[k].upBound = float(x1[k])
-    st, ss, x2, _, _ = _run(prob, variables, model, settings, tmp, log + ".2a",
-                            max(min(0.1 * budget, remaining()), 5.0), settings.relative_gap / 10)
-    if _interpret(settings, st, ss, x2, model, None, 0.0).has_plan:
-        best_x, best_obj = x2, float(model.c @ x2 + model.c0)
-    gap = _gap(best_obj, info1.best_bound) if best_x is not None else None
-    if remaining() > 2.0 and _open(best_obj, info1.best_bound, settings):
-        for k, (lo, hi) in zip(first, saved):
-            variables[k].lowBound = float(x1[k])
-            variables[k].upBound = float(x1[k] + 1) if hi is None else float(min(x1[k] + 1, hi))
-        st, ss, x3, _, _ = _run(prob, variables, model, settings, tmp, log + ".2b",
-                                remaining(), settings.relative_gap / 2,
-                                warm=best_x is not None)
-        if _interpret(settings, st, ss, x3, model, None, 0.0).has_plan:
-            obj3 = float(model.c @ x3 + model.c0)
-            if obj3 < best_obj - 1e-9:
-                best_x, best_obj = x3, obj3
-    for k, (lo, hi) in zip(first, saved):
-        variables[k].lowBound, variables[k].upBound = lo, hi
-    # with phases fixed outside, only the outer bound bounds the full problem
-    bound = info1.best_bound if outer_bound is None else outer_bound
-    if outer_bound is None and remaining() > 2.0 and _open(best_obj, bound, settings):
-        # phase 3: the whole problem, started from the best whole plan so far
+    ctx = _fixed(variables, fixed0, x0) if x0 is not None else contextlib.nullcontext()
+    with ctx:
+        if first.size and second.size:
+            with _continuous(variables, second):
+                c1 = r.call(PHASE1_SHARE * budget, None,
+                            warm=x0 is None and _set_start(variables, start), suffix=".1")
+            if not r.has_plan(c1):
+                if x0 is None:
+                    return _interpret(s, c1, model, r), c1.x
+            else:
+                inner_bound = c1.bound
+                x1 = c1.x
+                with _fixed(variables, first, x1) as saved:
+                    c2 = r.call(max(PHASE2A_SHARE * budget, PHASE2A_MIN_SECONDS),
+                                s.relative_gap / 10, suffix=".2a")
+                    if r.has_plan(c2):
+                        best_x, best_obj = c2.x, r.objective(c2.x)
+                    if r.remaining() > 2.0 and _open(best_obj, inner_bound, s):
+                        # 2b: keep every unit of phase 1, add at most one
+                        for k, (lo, hi) in zip(first, saved):
+                            variables[k].lowBound = float(x1[k])
+                            variables[k].upBound = float(x1[k] + 1) if hi is None else \
+                                float(min(x1[k] + 1, hi))
+                        c3 = r.call(r.remaining(), s.relative_gap / 2,
+                                    warm=best_x is not None, suffix=".2b")
+                        if r.has_plan(c3) and r.objective(c3.x) < best_obj - 1e-9:
+                            best_x, best_obj = c3.x, r.objective(c3.x)
+        elif x0 is not None:
+            c1 = r.call(r.remaining(), None, suffix=".1")
+            if r.has_plan(c1):
+                best_x, best_obj = c1.x, r.objective(c1.x)
+                inner_bound = c1.bound
+    if x0 is None:
+        bound = inner_bound  # with nothing fixed outside, phase 1's bound is valid
+    if r.remaining() > 2.0 and _open(best_obj, bound, s):
+        # the whole problem, started from the best whole plan so far
         if best_x is not None:
-            for v, val in zip(variables, best_x):
-                v.varValue = float(val)
-        st, ss, x4, b4, _ = _run(prob, variables, model, settings, tmp, log + ".3",
-                                 remaining(), None, warm=best_x is not None)
-        i4 = _interpret(settings, st, ss, x4, model, b4, 0.0)
-        if i4.has_plan and i4.objective < best_obj - 1e-9:
-            best_x, best_obj = x4, i4.objective
-        if b4 is not None and (bound is None or b4 > bound):
-            bound = b4
-    seconds = time.perf_counter() - t_start
+            _set_start(variables, best_x)
+        c4 = r.call(r.remaining(), None, warm=best_x is not None, suffix=".3")
+        if r.has_plan(c4) and r.objective(c4.x) < best_obj - 1e-9:
+            best_x, best_obj = c4.x, r.objective(c4.x)
+        if c4.bound is not None and (bound is None or c4.bound > bound):
+            bound = c4.bound
+    seconds = r.elapsed()
     if best_x is None:
-        info1.status = "no solution"
-        info1.message = ("phase 1 found cage counts, but no whole number of trays fits them in "
-                         "the time left; give the solver more time (--time-limit)")
-        info1.objective = None
-        return info1, x1
-    gap = _gap(best_obj, bound)
-    limited = _open(best_obj, bound, settings)
-    if not limited:
-        msg = "optimal within the relative gap" + (f" ({gap:.2%})" if gap and gap > 1e-9 else "")
-        status = "optimal"
-    else:
-        msg = (f"stopped at the time limit ({settings.time_limit:g} s) with a plan whose gap is "
-               f"{'unknown' if gap is None else f'{gap:.2%}'}: the plan is feasible but may "
-               "not be the cheapest")
-        status = "feasible"
-    return SolveInfo(settings.solver, status, not limited, limited, best_obj,
-                     bound, gap, seconds, msg), best_x
+        return SolveInfo(s.solver, "no solution", False, r.hit, None, bound, None, seconds,
+                         f"no whole plan found in {seconds:.1f} s (time limit "
+                         f"{budget:g} s); give the solver more time"), \
+            (x0 if x0 is not None else np.zeros(model.n))
+    return _final(s, best_obj, bound, seconds, r.hit), best_x
 
 
-def _interpret(s, status, sol_status, x, model, bound, seconds) -> SolveInfo:
+def _final(s: SolveSettings, objective: float, bound: float | None, seconds: float,
+           hit: bool) -> SolveInfo:
+    """The status of a whole plan with its best bound."""
+    gap = _gap(objective, bound)
+    if not _open(objective, bound, s):
+        msg = "optimal" + (f" within the relative gap ({gap:.2%})"
+                           if gap is not None and gap > CLOSED_GAP else "")
+        return SolveInfo(s.solver, "optimal", True, False, objective, bound, gap, seconds,
+                         msg + f" in {seconds:.1f} s")
+    why = (f"stopped at the time limit after {seconds:.1f} s" if hit else
+           f"stopped after {seconds:.1f} s")
+    msg = (f"{why} with a plan whose gap is "
+           f"{'unknown' if gap is None else f'{gap:.2%}'}: the plan is feasible but may "
+           "not be the cheapest")
+    return SolveInfo(s.solver, "feasible", False, hit, objective, bound, gap, seconds, msg)
+
+
+def _interpret(s, c: _Call, model, r: _Runner) -> SolveInfo:
     has_ints = bool(model.integrality.any())
-    if sol_status == pulp.LpSolutionOptimal or (status == "Optimal" and sol_status == 1):
-        objective = float(model.c @ x + model.c0)
-        if not has_ints:
-            bound = objective
+    seconds = r.elapsed()
+    if c.sol_status == pulp.LpSolutionOptimal or (c.status == "Optimal" and c.sol_status == 1):
+        objective = float(model.c @ c.x + model.c0)
+        bound = c.bound if has_ints else objective
+        if has_ints and bound is None and not c.hit:
+            bound = objective  # proven by the solver, whose bound we could not read
+        if has_ints and c.hit:
+            return _final(s, objective, bound, seconds, True)
         gap = _gap(objective, bound)
         return SolveInfo(s.solver, "optimal", True, False, objective, bound, gap, seconds,
-                         "optimal" + ("" if not has_ints or gap is None or gap <= 1e-9 else
-                                      f" within the relative gap ({gap:.2%})"))
-    if sol_status == pulp.LpSolutionIntegerFeasible:
-        objective = float(model.c @ x + model.c0)
-        gap = _gap(objective, bound)
-        limited = gap is None or gap > s.relative_gap
-        msg = (f"stopped at the time limit ({s.time_limit:g} s) with a plan whose gap is "
-               f"{'unknown' if gap is None else f'{gap:.2%}'}: the plan is feasible but may "
-               "not be the cheapest") if limited else "optimal within the relative gap"
-        return SolveInfo(s.solver, "feasible" if limited else "optimal", not limited, limited,
-                         objective, bound, gap, seconds, msg)
-    if status == "Infeasible" or sol_status == pulp.LpSolutionInfeasible:
+                         "optimal" + ("" if not has_ints or gap is None or gap <= CLOSED_GAP
+                                      else f" within the relative gap ({gap:.2%})"))
+    if c.sol_status == pulp.LpSolutionIntegerFeasible:
+        return _final(s, float(model.c @ c.x + model.c0), c.bound, seconds, c.hit)
+    if c.status == "Infeasible" or c.sol_status == pulp.LpSolutionInfeasible:
         return SolveInfo(s.solver, "infeasible", False, False, None, None, None, seconds,
                          "the model has no feasible plan (check capacities and the start state)")
-    if status == "Unbounded":
+    if c.status == "Unbounded":
         return SolveInfo(s.solver, "unbounded", False, False, None, None, None, seconds,
                          "the model is unbounded (a cost or bound is missing)")
-    return SolveInfo(s.solver, "no solution", False, True, None, bound, None, seconds,
-                     f"the solver stopped (time limit {s.time_limit:g} s) before finding any "
-                     "plan; give it more time (--time-limit) or a larger gap")
+    return SolveInfo(s.solver, "no solution", False, c.hit, None, c.bound, None, seconds,
+                     f"the solver stopped after {seconds:.1f} s (time limit "
+                     f"{s.time_limit:g} s) before finding any plan; give it more time or a "
+                     "larger gap")
 
 
 def _open(objective: float, bound: float | None, s: SolveSettings) -> bool:
-    """Whether the gap between a plan and the bound is still above the settings' target."""
+    """Whether the gap between a plan and the bound is still above the settings' target
+    (a gap at or below :data:`CLOSED_GAP` is closed)."""
     if objective is None or not math.isfinite(objective) or bound is None:
         return True
     if s.absolute_gap is not None and objective - bound <= s.absolute_gap:
         return False
-    return _gap(objective, bound) > s.relative_gap * (1 + 1e-9)
+    return _gap(objective, bound) > max(s.relative_gap, CLOSED_GAP) * (1 + 1e-9)
 
 
 def _gap(objective: float, bound: float | None) -> float | None:
     if bound is None or objective is None:
         return None
-    return max(0.0, (objective - bound)) / max(abs(objective), 1e-9)
+    g = max(0.0, (objective - bound)) / max(abs(objective), 1e-9)
+    return 0.0 if g <= CLOSED_GAP else g
 
 
 def _relaxed_duals(model, settings, tmp) -> dict[str, np.ndarray]:

@@ -289,10 +289,11 @@ def verify_plan(res, rel_tol: float = 1e-6) -> list[Violation]:
     ship_block = res.built.blocks["ship"]
     short_block = res.built.blocks["shortfall"]
     shipped = defaultdict(float)
-    for (cust, w), s_, sf in zip(ship_block.labels, ship_block.values(res.solution.x),
-                                 short_block.values(res.solution.x)):
+    asked = res.built.asked(res.solution.x)
+    for (cust, w), s_, sf, ordered in zip(ship_block.labels, ship_block.values(res.solution.x),
+                                          short_block.values(res.solution.x), asked):
         shipped[w - 1] += s_
-        ordered = float(data.ordered[data.customers.index(cust), w - 1])
+        ordered = float(ordered)
         if s_ + sf < ordered - _tol(ordered, rel_tol):
             fam = "orders" if w <= data.report_weeks else "end"
             flag(fam, f"{cust}, week {w}", ordered - s_ - sf, "order neither shipped nor "
@@ -301,6 +302,21 @@ def verify_plan(res, rel_tol: float = 1e-6) -> list[Violation]:
         if s_ > per_week.get(w, 0.0) + _tol(s_, rel_tol):
             flag("shipping", f"week {w + 1}", s_ - per_week.get(w, 0.0),
                  "more product shipped than the pupae released that week give")
+
+    # -- a short week shared pro rata within a priority class ----------------------------
+    if "share" in res.built.blocks:
+        sh = res.built.blocks["share"]
+        z = dict(zip(sh.labels, sh.values(res.solution.x)))
+        for (cust, w), sf, ordered in zip(short_block.labels,
+                                          short_block.values(res.solution.x), asked):
+            key = (int(data.priority[data.customers.index(cust)]), w)
+            if key in z and sf > z[key] * ordered + _tol(ordered, rel_tol):
+                flag("share", f"{cust}, week {w}", sf - z[key] * ordered,
+                     "shortfall above the class's shared share")
+    if "start_week" in res.built.blocks:
+        y = res.built.blocks["start_week"].values(res.solution.x)
+        if abs(float(y.sum()) - 1.0) > 1e-6:
+            flag("one_start", "-", float(y.sum()), "not exactly one first week chosen")
 
     # -- policy switches -----------------------------------------------------------------
     plan_b = res.cage_batches[res.cage_batches["source"] == "plan"]

@@ -52,7 +52,8 @@ from planner.optimise.build import PUPAE_UNIT, _constant
 from planner.optimise.results import PlanResult
 from planner.scenario.schema import Variation
 
-__all__ = ["NO_VARIATION", "RiskResult", "replay", "beta_parameters", "batch_survivors"]
+__all__ = ["NO_VARIATION", "RiskResult", "replay", "beta_parameters", "batch_survivors",
+           "has_spreads"]
 
 #: A week counts as filled when its product is within this share of its orders [-].
 FILL_TOLERANCE = 1e-6
@@ -60,6 +61,15 @@ FILL_TOLERANCE = 1e-6
 
 #: No variation at all (with ``binomial=False`` the replay is the plan).
 NO_VARIATION = Variation(hatch_cv=0.0, larval_cv=0.0, fecundity_cv=0.0, tray_loss=0.0)
+
+
+def has_spreads(colony) -> bool:
+    """Whether the colony model (:class:`planner.scenario.schema.ColonyModel`) gives its
+    own ``[variation]`` section with at least one spread above zero (the defaults of a
+    model without the section are not measurements, so nothing is claimed from them)."""
+    var = colony.variation
+    return "variation" in colony.model_fields_set and any(
+        float(v) > 0 for v in var.model_dump().values())
 
 
 def beta_parameters(mean: float, cv: float, what: str = "survival") -> tuple[float, float]:
@@ -144,24 +154,49 @@ class RiskResult:
                              "p95": float(np.percentile(got, 95)), "mean": float(got.mean())})
         return pd.DataFrame(rows)
 
+    def _judged(self, from_week: int) -> np.ndarray:
+        """(weeks,) bool: the weeks with orders from plan week ``from_week`` [week
+        number, 1-based] on."""
+        return (self.ordered > 0) & (self.weeks >= from_week)
+
     def worst_fill(self, from_week: int = 1) -> float:
         """The smallest fill probability over the weeks with orders from ``from_week``
-        [-]."""
-        with_orders = (self.ordered > 0) & (self.weeks >= from_week)
-        return float(self.fill_probability()[with_orders].min()) if with_orders.any() else 1.0
+        [week number, 1-based] on [-] (1 if no such week)."""
+        judged = self._judged(from_week)
+        return float(self.fill_probability()[judged].min()) if judged.any() else 1.0
+
+    def worst_week(self, from_week: int = 1) -> int | None:
+        """The week with orders from ``from_week`` [week number, 1-based] on that is least
+        likely to be filled [week number] (the first of equals; None if no such week)."""
+        judged = self._judged(from_week)
+        if not judged.any():
+            return None
+        return int(self.weeks[judged][np.argmin(self.fill_probability()[judged])])
+
+    def all_filled(self, from_week: int = 1) -> float:
+        """Chance that one replay fills every week with orders from ``from_week`` [week
+        number, 1-based] on [-] (1 if no such week)."""
+        judged = self._judged(from_week)
+        if not judged.any():
+            return 1.0
+        return float(np.mean(np.all(self.filled()[judged], axis=0)))
+
+    def fill_summary(self, from_week: int = 1) -> dict:
+        """The headline of the replay: chance that every week with orders from
+        ``from_week`` [week number, 1-based] is filled [-], the worst week [week number]
+        and its fill probability [-], and the replicates and seed."""
+        return {"all_weeks": self.all_filled(from_week), "worst_week": self.worst_week(from_week),
+                "worst_week_probability": self.worst_fill(from_week),
+                "replicates": self.replicates, "seed": self.seed, "from_week": int(from_week)}
 
     def summary(self) -> dict:
-        fill = self.fill_probability()
-        with_orders = self.ordered > 0
         table = self.weekly_table()
         return {
             "replicates": self.replicates, "seed": self.seed,
             "variation": self.variation.model_dump() | {"binomial": self.binomial},
             "worst_week_fill_probability": self.worst_fill(),
-            "worst_week": int(self.weeks[with_orders][np.argmin(fill[with_orders])])
-            if with_orders.any() else None,
-            "all_weeks_filled_probability": float(np.mean(np.all(
-                self.filled()[with_orders], axis=0))) if with_orders.any() else 1.0,
+            "worst_week": self.worst_week(),
+            "all_weeks_filled_probability": self.all_filled(),
             "expected_shortfall_million": float(table.loc[table["customer"] == "all",
                                                           "expected_shortfall"].sum()),
             "colony_end_p5": float(np.percentile(self.colony_end, 5)),

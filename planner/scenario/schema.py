@@ -411,6 +411,10 @@ class Order(_Model):
                                                         "(default: open-ended)")
     shortfall_per_million: Q("currency/million", "this order's own shortfall price (default: "
                                                  "the scenario's)", gt=0) | None = None
+    priority: int = Field(1, ge=1, le=9, strict=True,
+                          description="priority class [-]: 1 is served first; a short week "
+                                      "falls on the larger numbers first, and customers of "
+                                      "one class share it pro rata")
 
     @field_validator("first_week", "last_week")
     @classmethod
@@ -482,7 +486,7 @@ class PlanSettings(_Model):
     """Horizon and solver settings."""
 
     horizon_weeks: N("weeks", "length of the plan", ge=1, le=104) = 26
-    solver: Literal["cbc", "highs"] = Field("cbc", description="MILP solver")
+    solver: Literal["auto", "cbc", "highs"] = Field("auto", description="MILP solver: auto (HiGHS when installed, else CBC), highs or cbc")
     time_limit: Q("s", "solver time limit", gt=0) = 120.0
     relative_gap: Q("-", "relative optimality gap at which the solver may stop", ge=0,
                     lt=1) = 0.005
@@ -572,6 +576,13 @@ class Scenario(_Model):
         if isinstance(ref, dt.date):
             return (ref - self.calendar.start).days // 7 + 1
         return int(ref)
+
+    def priorities(self) -> dict[str, int]:
+        """Priority class of each customer [-]: the smallest of its orders' classes."""
+        out: dict[str, int] = {}
+        for o in self.orders:
+            out[o.customer] = min(out.get(o.customer, o.priority), o.priority)
+        return out
 
     def weekly_orders(self, weeks: int) -> dict[str, list[float]]:
         """Ordered volume by customer for plan weeks 1..weeks [million/week]."""

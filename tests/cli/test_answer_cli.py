@@ -78,6 +78,10 @@ def test_quote_json_and_workbook(tmp_path, fly, capsys):
                 "max_weekly_volume", "earliest_full_start", "limiting_resources"):
         assert key in d
     assert d["feasible"] is True and d["max_weekly_volume"] is None
+    assert d["full_from_week"] == d["start_week"] and d["lead_time_limited"] is False
+    assert d["partial_weeks"] == [] and d["booked_shortfall_million"] <= 1e-6
+    assert d["solves"] <= 20 and d["seconds"] > 0 and d["time_limited"] is False
+    assert any(c["customer"].endswith("(quote)") for c in d["customers"])
     assert d["extra_cost_per_week"] > 0
     wb = openpyxl.load_workbook(out)
     assert wb.sheetnames[0] == "Quote"

@@ -127,3 +127,35 @@ def test_progress_lines_are_parsed():
              "        0      0      0         0     0.0s")
     assert parse_progress(start) == (2209730.384411, None)
     assert parse_progress("nothing yet") == (None, None)
+
+
+def test_plan_says_its_chance_of_filling_every_week(tmp_path, solved, capsys):
+    """The demo's colony model has spreads: the plan is replayed, and the numbers are those
+    of planner.risk.replay run directly with the same seed."""
+    import numpy as np
+
+    from planner.risk import replay
+    argv = ["plan", str(demo_scenario_path("fly")), "-o", str(tmp_path / "p.xlsx"),
+            "--replicates", "500", "--seed", "3"]
+    assert main(argv + ["--json"]) == 0
+    f = json.loads(capsys.readouterr().out)["fill_probability"]
+    r = replay(solved, replicates=500, seed=3)
+    judged = r.ordered > 0
+    fill = r.fill_probability()
+    assert f["replicates"] == 500 and f["seed"] == 3
+    assert f["all_weeks"] == pytest.approx(np.all(r.filled()[judged], axis=0).mean())
+    assert f["worst_week_probability"] == pytest.approx(fill[judged].min())
+    assert f["worst_week"] == int(r.weeks[judged][np.argmin(fill[judged])])
+    late = judged & (r.weeks >= f["margin_from_week"])
+    assert f["from_margin_week"]["worst_week_probability"] == pytest.approx(fill[late].min())
+
+    assert main(argv) == 0
+    out = capsys.readouterr().out
+    line = re.search(r"Chance of filling every week: ([\d.]+) % \(worst week (\d+): ([\d.]+) "
+                     r"%\), from 500 replays of the colony model's spreads; plan with "
+                     r"--target-fill P to add a safety margin\.", out)
+    assert line, out
+    assert float(line.group(1)) == pytest.approx(100 * f["all_weeks"], abs=0.05)
+    assert int(line.group(2)) == f["worst_week"]
+    assert float(line.group(3)) == pytest.approx(100 * f["worst_week_probability"], abs=0.05)
+    assert "[variation] spreads" in out and "licensed staff" in out

@@ -50,14 +50,19 @@ def tiny(fly):
     return build_model(data)
 
 
-def test_tiny_instance_matches_scipy_milp(tiny):
-    m = tiny.model
+def _scipy_milp(m):
+    """The same matrices solved by scipy's milp (HiGHS inside scipy) to a 1e-9 gap."""
     a_ub, b_ub, a_eq, b_eq = m.stacked()
     cons = [LinearConstraint(a_ub, -np.inf, b_ub)]
     if a_eq.shape[0]:
         cons.append(LinearConstraint(a_eq, b_eq, b_eq))
-    ref = milp(m.c, constraints=cons, integrality=m.integrality, bounds=Bounds(m.lb, m.ub),
-               options={"mip_rel_gap": 1e-9, "time_limit": 120})
+    return milp(m.c, constraints=cons, integrality=m.integrality, bounds=Bounds(m.lb, m.ub),
+                options={"mip_rel_gap": 1e-9, "time_limit": 120})
+
+
+def test_tiny_instance_matches_scipy_milp(tiny):
+    m = tiny.model
+    ref = _scipy_milp(m)
     assert ref.status == 0, ref.message
     ref_obj = ref.fun + m.c0
     direct = solve(m, SolveSettings(relative_gap=1e-9, strategy="direct", duals=False))
@@ -67,22 +72,82 @@ def test_tiny_instance_matches_scipy_milp(tiny):
     assert two.info.best_bound <= ref_obj * (1 + 1e-9)
 
 
+def _call(status, sol_status, x, bound, seconds, hit):
+    from planner.optimise.solve import _Call
+    return _Call(status, sol_status, x, bound, seconds, hit)
+
+
+class _Clock:
+    def elapsed(self):
+        return 7.0
+
+
 def test_statuses_are_interpreted_plainly(tiny):
     s = SolveSettings(time_limit=7)
     x = np.zeros(tiny.model.n)
-    none = _interpret(s, "Not Solved", 0, x, tiny.model, None, 7.0)
+    none = _interpret(s, _call("Not Solved", 0, x, None, 7.0, True), tiny.model, _Clock())
     assert none.status == "no solution" and none.objective is None and not none.has_plan
-    assert "before finding any plan" in none.message
-    limited = _interpret(s, "Optimal", 2, x, tiny.model, -1.0, 7.0)
+    assert "before finding any plan" in none.message and none.time_limited
+    limited = _interpret(s, _call("Optimal", 2, x, -1.0, 7.0, True), tiny.model, _Clock())
     assert limited.status == "feasible" and limited.time_limited
-    assert "time limit" in limited.message
-    bad = _interpret(s, "Infeasible", -1, x, tiny.model, None, 0.1)
+    assert "time limit after 7.0 s" in limited.message
+    # an open gap without a limit hit is not called time-limited
+    stopped = _interpret(s, _call("Optimal", 2, x, -1.0, 3.0, False), tiny.model, _Clock())
+    assert stopped.status == "feasible" and not stopped.time_limited
+    bad = _interpret(s, _call("Infeasible", -1, x, None, 0.1, False), tiny.model, _Clock())
     assert bad.status == "infeasible"
+
+
+def _tiny_variant(fly, **plan):
+    scn = fly.model_copy(deep=True)
+    scn.colony.rearing.discard_ages = [50, 57]
+    scn.colony.rearing.harvest_ages = [24, 25]
+    scn.plan = scn.plan.model_copy(update=plan)
+    start = start_batches(fly, settings_for(fly))
+    start.cages = [(s, c, 57 if d not in (50, 57) else d) for s, c, d in start.cages]
+    return scn, start
+
+
+@pytest.mark.parametrize("solver", ["cbc", "highs"])
+@pytest.mark.parametrize("switches,options", [({}, False), ({"single_discard_age": True,
+                                                              "single_harvest_age": True},
+                                                             False), ({}, True)])
+def test_a_closed_gap_is_called_optimal(fly, solver, switches, options):
+    """--gap 0 on a tiny plan: proven optimal, gap under 1e-9, not time-limited, with
+    and without policy switches and expansion options (the full-problem phase runs
+    whenever the gap is open). Checked against scipy's milp (HiGHS inside scipy)."""
+    scn, start = _tiny_variant(fly, **switches)
+    data = compile_horizon(scn, start, horizon_weeks=1, lookahead_weeks=1,
+                           use_expansion=options)
+    m = build_model(data).model
+    sol = solve(m, SolveSettings(solver=solver, relative_gap=0.0, time_limit=60,
+                                 duals=False))
+    assert sol.info.status == "optimal" and not sol.info.time_limited, sol.info.message
+    assert sol.info.gap is not None and sol.info.gap < 1e-9
+    assert sol.info.seconds < 55
+    ref = _scipy_milp(m)
+    assert sol.info.objective == pytest.approx(ref.fun + m.c0, rel=1e-6)
 
 
 def test_missing_solver_is_a_clear_error(tiny, monkeypatch):
     import importlib
     mod = importlib.import_module("planner.optimise.solve")
     monkeypatch.setattr(mod, "available_solvers", lambda: ["cbc"])
-    with pytest.raises(SolverError, match="pip install 'broodline\\[highs\\]'"):
+    with pytest.raises(SolverError, match="pip install highspy"):
         solve(tiny.model, SolveSettings(solver="highs"))
+
+
+def test_the_time_limit_bounds_a_104_week_plan(fly):
+    """--time-limit 10 on 104 weeks: back within 15 s, with a plan marked for what it is
+    (proven within the gap, or time-limited with its gap) or no plan at all."""
+    import time
+    t0 = time.perf_counter()
+    res = plan_horizon(fly, settings_for(fly, time_limit=10), horizon_weeks=104)
+    assert time.perf_counter() - t0 < 15.0
+    info = res.info
+    if info.has_plan:
+        assert info.time_limited == (info.status == "feasible") or info.status == "optimal"
+        if info.time_limited:
+            assert "time limit" in info.message and info.gap is None or info.gap > 0
+    else:
+        assert info.status in ("no solution", "infeasible")

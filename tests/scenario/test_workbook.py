@@ -243,7 +243,7 @@ def test_choice_and_date_cells_have_validations(demo_xlsx):
                 for dv in wb[title].data_validations.dataValidation}
 
     plan = rules("Plan")
-    assert plan[("list", '"cbc,highs"')] == f"B{find_field(wb['Plan'], 'solver')}"
+    assert plan[("list", '"auto,cbc,highs"')] == f"B{find_field(wb['Plan'], 'solver')}"
     assert ("list", '"7,14"') in plan and ("list", '"yes,no"') in plan
     assert ("list", '"all eggs,female eggs"') in rules("Colony")
     calendar = rules("Calendar")
