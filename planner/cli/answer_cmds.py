@@ -147,8 +147,13 @@ def quote_text(q, cur: str) -> str:
             lines.append(f"  Week {p['week']} can have {p['fill']:.1%}, because of the "
                          "egg-to-harvest lead time (its pupae are already laid or seeded).")
     else:
-        lines.append(f"No: {num(q.weekly_volume)} million/week for {q.weeks} weeks from {start} "
-                     "cannot be taken in full.")
+        if s["time_limited"]:
+            lines.append(f"Not shown to fit: no plan found in the time given takes "
+                         f"{num(q.weekly_volume)} million/week for {q.weeks} weeks from {start} "
+                         "in full (a longer --time-limit may).")
+        else:
+            lines.append(f"No: {num(q.weekly_volume)} million/week for {q.weeks} weeks from "
+                         f"{start} cannot be taken in full.")
         for p in s["partial_weeks"]:
             lines.append(f"  Week {p['week']}: {p['fill']:.1%} ({p['cause']}).")
         if s["max_weekly_volume"] is not None:

@@ -55,6 +55,7 @@ class ExpansionResult:
     delivered: float
     shortfall: float
     seconds: float
+    solves: int = 1  #: solver runs: the plan, and the start routine when solved here
 
     @property
     def cost_per_million(self) -> float | None:
@@ -71,7 +72,7 @@ class ExpansionResult:
                 "booked_shortfall_million": self.plan.booked_shortfall(),
                 "customers": self.plan.customer_table(),
                 "currency": self.plan.scenario.costs.currency, "seconds": self.seconds,
-                "solves": 2}
+                "solves": self.solves}
 
 
 def _top_up(scn: Scenario, target: float, from_week: int, weeks: int) -> list[Order]:
@@ -101,6 +102,7 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
                          place="expansion")
     t0 = time.perf_counter()
     settings = settings or settings_for(scn)
+    solves = 1 if start is not None else 2
     start = start or start_batches(scn, dataclasses.replace(settings, log_path=None))
     week = from_week or default_start_week(scn)
     probe = compile_horizon(scn, start)
@@ -112,7 +114,7 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     res = read_back(built, solve(built.model, settings))
     if not res.info.has_plan:
         return ExpansionResult(target, week, res, {}, math.nan, math.nan, 0.0, math.nan,
-                               time.perf_counter() - t0)
+                               time.perf_counter() - t0, solves)
     units = res.built.blocks["buy"].values(res.solution.x)
     bought = {opt.name: int(round(u)) for opt, u in zip(data.options, units)}
     c = res.costs
@@ -124,7 +126,7 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
                            expansion_cost=exp_cost, total_cost=total,
                            delivered=float(w["released"].sum()),
                            shortfall=float(w["shortfall"].sum()),
-                           seconds=time.perf_counter() - t0)
+                           seconds=time.perf_counter() - t0, solves=solves)
 
 
 def _task(params: dict) -> dict:

@@ -41,12 +41,8 @@ from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
 from planner.scenario.schema import Order, Scenario
 
-__all__ = ["QuoteResult", "quote", "default_start_week", "Budget", "TOLERANCE", "FILL_SHARE"]
+__all__ = ["QuoteResult", "quote", "default_start_week", "Budget"]
 
-#: A shortfall below this is no shortfall [million over the whole order] ...
-TOLERANCE = 1e-3
-#: ... nor one below this share of the ordered volume [-] (the fill tolerance).
-FILL_SHARE = FILL_TOLERANCE
 #: Objective weight of one million a week of the asked volume [currency per million/week]
 #: (far above any cost, so costs only break ties).
 VOLUME_WEIGHT = 1e7
@@ -186,7 +182,7 @@ class _Asker:
         """Price the quote's shortfall so that a shortfall of the fill tolerance costs
         twice what the solver's relative gap may leave on the table."""
         cost = abs(self.base.info.objective or 0.0) if self.base is not None else 0.0
-        need = 2.0 * max(self.settings.relative_gap, 1e-4) * cost / (FILL_SHARE * weekly_volume)
+        need = 2.0 * max(self.settings.relative_gap, 1e-4) * cost / (FILL_TOLERANCE * weekly_volume)
         self.price = max(self.scn.costs.shortfall_per_million, need)
 
     def order(self, volume: float, first: int, last: int) -> Order:
@@ -224,7 +220,7 @@ class _Asker:
 
 
 def _short_weeks(weeks: dict[int, tuple[float, float]]) -> list[int]:
-    return [w for w, (a, r) in sorted(weeks.items()) if r < a * (1 - FILL_SHARE) - 1e-9]
+    return [w for w, (a, r) in sorted(weeks.items()) if r < a * (1 - FILL_TOLERANCE) - 1e-9]
 
 
 def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | None = None,
@@ -268,7 +264,7 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
         raise NoPlanError(f"no plan even without the quote: {base.info.message}")
     a.base = base
     a.price_for(weekly_volume)
-    base_short = base.booked_shortfall() > FILL_SHARE * max(
+    base_short = base.booked_shortfall() > FILL_TOLERANCE * max(
         float(base.weekly["ordered"].sum()), 1e-9)
     if base_short:
         budget.say(f"note: the book alone is already short by {base.booked_shortfall():.3g} "
@@ -324,8 +320,6 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
     ramp_date, changes = _first_changes(base, promised_plan)
     qw = promised_plan.weekly[promised_plan.weekly["customer"] == name]
     delivered = float(qw["released"].sum())
-    short = float(qw["shortfall"].sum()) if promised_plan is fill else float(
-        sum(max(a_ - r, 0.0) for a_, r in qweeks.values()))
     in_horizon = min(weeks, max(0, horizon - first + 1))
     plans = [base] if promised_plan is base else [base, promised_plan]
     noise = sum((r.info.gap or 0.0) * abs(operating_cost(r)) for r in plans)
@@ -357,7 +351,7 @@ def _earliest_start(a: _Asker, volume: float, first: int, held: dict) -> int | N
     if not firsts:
         return None
     horizon = limit + a.weeks - 1
-    penalty = 0.5 * a.price * FILL_SHARE * volume
+    penalty = 0.5 * a.price * FILL_TOLERANCE * volume
     res = a.plan([a.order(volume, first + 1, horizon)],
                  Question(start_choice=(a.customer, volume, a.weeks, firsts, penalty),
                           shortfall_cap=held),

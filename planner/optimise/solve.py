@@ -557,8 +557,6 @@ def _interpret(s, c: _Call, model, r: _Runner) -> SolveInfo:
     if c.sol_status == pulp.LpSolutionOptimal or (c.status == "Optimal" and c.sol_status == 1):
         objective = float(model.c @ c.x + model.c0)
         bound = c.bound if has_ints else objective
-        if has_ints and bound is None and not c.hit:
-            bound = objective  # proven by the solver, whose bound we could not read
         if has_ints and c.hit:
             return _final(s, objective, bound, seconds, True)
         gap = _gap(objective, bound)
