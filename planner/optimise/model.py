@@ -63,7 +63,7 @@ class VariableBlock:
     integer : bool
         Integer variables.
     phase : int
-        2 for integer variables that a two-phase solve settles after the others.
+        2 for integer variables that the solve settles after the others (trays).
     offset : int
         Position of the block's first variable in the model's flat vector.
     unit : str

@@ -46,6 +46,21 @@ PHASE1_SHARE = 0.7
 #: :data:`PHASE2A_MIN_SECONDS`.
 PHASE2A_SHARE = 0.1
 PHASE2A_MIN_SECONDS = 5.0
+#: Shares of the time limit for the neighbourhood route's LP relaxation, its first
+#: neighbourhood (trays relaxed) and its second (trays whole) [-].
+NEIGHBOURHOOD_LP_SHARE = 0.3
+NEIGHBOURHOOD_A_SHARE = 0.35
+NEIGHBOURHOOD_B_SHARE = 0.25
+#: At most this many neighbourhoods around the best plan before the whole problem [-].
+NEIGHBOURHOOD_ROUNDS = 3
+#: Each neighbourhood search also stops after this many times the LP relaxation's own
+#: time, or :data:`NEIGHBOURHOOD_MIN_SECONDS` if more [-], [s]: a neighbourhood that
+#: is slow to search is left to the whole problem.
+NEIGHBOURHOOD_LP_TIMES = 20.0
+NEIGHBOURHOOD_MIN_SECONDS = 3.0
+#: When the rounded neighbourhood's plan is further than this many times the relative
+#: gap from the bound, the cages are searched over their whole range instead [-].
+NEIGHBOURHOOD_WIDEN = 4.0
 #: A solver call that ran for this share of its time limit or more hit the limit [-].
 LIMIT_HIT_SHARE = 0.97
 
@@ -75,7 +90,7 @@ class SolveSettings:
     log_path : str, optional
         Where the solver writes its log (read for the progress display and CBC's bound).
     strategy : str
-        ``"two-phase"`` or ``"direct"`` (see :func:`solve`).
+        ``"neighbourhood"`` (default), ``"phased"`` or ``"direct"`` (see :func:`solve`).
     absolute_gap : float, optional
         [objective unit] the solver may also stop when incumbent - bound is below this
         (for objectives whose optimum is near 0, where a relative gap means nothing).
@@ -87,7 +102,7 @@ class SolveSettings:
     threads: int = 1
     duals: bool = True
     log_path: str | None = None
-    strategy: str = "two-phase"
+    strategy: str = "neighbourhood"
     absolute_gap: float | None = None
 
     def __post_init__(self):
@@ -180,7 +195,94 @@ def to_pulp(model: LinearModel, relax: bool = False):
             prob.addConstraint(con)
             out.append(con)
         rows[fam.name] = out
+    prob._broodline_model = (model, variables)  # read by _HiGHS for its one-call build
     return prob, variables, rows
+
+
+def _row_bounds(model: LinearModel):
+    """(A in CSC, row lower, row upper) of every family in the model's order."""
+    import scipy.sparse as sp
+    mats, lo, hi = [], [], []
+    for f in model.families.values():
+        mats.append(f.A)
+        b = np.asarray(f.b, float)
+        lo.append(b if f.sense in (">=", "==") else np.full(f.size, -np.inf))
+        hi.append(b if f.sense in ("<=", "==") else np.full(f.size, np.inf))
+    if not mats:
+        return sp.csc_matrix((0, model.n)), np.zeros(0), np.zeros(0)
+    return sp.vstack(mats).tocsc(), np.concatenate(lo), np.concatenate(hi)
+
+
+if hasattr(pulp, "HiGHS") and getattr(pulp.HiGHS, "buildSolverModel", None) is not None:
+    class _HiGHS(pulp.HiGHS):
+        """PuLP's HiGHS interface with three additions: the model is handed to HiGHS in
+        one call from the model's sparse matrices (PuLP adds it row by row), a start plan
+        (HiGHS's ``setSolution``), and a target objective at which the search stops
+        (a callback that interrupts once an improving plan is at or below it)."""
+
+        def __init__(self, *args, start=None, target=None, **kwargs):
+            super().__init__(*args, **kwargs)
+            self.start, self.target = start, target
+
+        def buildSolverModel(self, lp):
+            held = getattr(lp, "_broodline_model", None)
+            if held is None:
+                return super().buildSolverModel(lp)
+            import highspy
+            model, variables = held
+            cache = getattr(lp, "_broodline_rows", None)
+            if cache is None:
+                cache = lp._broodline_rows = _row_bounds(model)
+            A, lo, hi = cache
+            inf = highspy.kHighsInf
+            h = highspy.HighsLp()
+            h.num_col_, h.num_row_ = model.n, A.shape[0]
+            h.col_cost_ = np.asarray(model.c, float)
+            h.col_lower_ = np.array([-inf if v.lowBound is None else v.lowBound
+                                     for v in variables], float)
+            h.col_upper_ = np.array([inf if v.upBound is None else v.upBound
+                                     for v in variables], float)
+            h.row_lower_ = np.where(np.isinf(lo), -inf, lo)
+            h.row_upper_ = np.where(np.isinf(hi), inf, hi)
+            h.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+            h.a_matrix_.start_ = A.indptr
+            h.a_matrix_.index_ = A.indices
+            h.a_matrix_.value_ = A.data
+            ints = [v.cat == pulp.LpInteger for v in variables]
+            if self.mip and any(ints):
+                kint, kcont = highspy.HighsVarType.kInteger, highspy.HighsVarType.kContinuous
+                h.integrality_ = [kint if i else kcont for i in ints]
+            lp.solverModel.passModel(h)
+            for k, v in enumerate(variables):
+                v.index = k
+            for i, con in enumerate(lp._constraints.values()):
+                con.index = i
+
+        def callSolver(self, lp):
+            import highspy
+            h = lp.solverModel
+            if self.start is not None:
+                sol = highspy.HighsSolution()
+                sol.col_value = [float(v) for v in self.start]
+                sol.value_valid = True
+                h.setSolution(sol)
+            if self.target is not None:
+                kind = highspy.cb.HighsCallbackType
+                state = {"best": math.inf}
+                target = float(self.target)
+
+                def stop_at_target(ctype, message, out, data_in, user):
+                    if ctype == kind.kCallbackMipImprovingSolution:
+                        state["best"] = min(state["best"], out.objective_function_value)
+                    elif ctype == kind.kCallbackMipInterrupt and state["best"] <= target:
+                        data_in.user_interrupt = True
+
+                h.setCallback(stop_at_target, None)
+                h.startCallback(kind.kCallbackMipImprovingSolution)
+                h.startCallback(kind.kCallbackMipInterrupt)
+            h.run()
+else:  # pragma: no cover - PuLP without its HiGHS interface
+    _HiGHS = None
 
 
 @contextlib.contextmanager
@@ -203,7 +305,11 @@ def _quiet():
 
 
 def _make_solver(s: SolveSettings, tmpdir: str, log_path: str | None, lp_only: bool = False,
-                 warm: bool = False):
+                 warm: bool = False, start: np.ndarray | None = None,
+                 target: float | None = None):
+    """A PuLP solver. CBC starts from the variables' values when ``warm``; HiGHS starts
+    from ``start`` and stops once a plan reaches ``target`` (solver units: the objective
+    without its constant)."""
     if s.solver == "cbc":
         solver = pulp.PULP_CBC_CMD(msg=False, timeLimit=s.time_limit,
                                    gapRel=None if lp_only else s.relative_gap,
@@ -215,10 +321,12 @@ def _make_solver(s: SolveSettings, tmpdir: str, log_path: str | None, lp_only: b
         kwargs = {}
         if log_path:
             kwargs = {"log_file": log_path, "log_to_console": False}
-        return pulp.HiGHS(msg=bool(log_path), timeLimit=s.time_limit,
-                          gapRel=None if lp_only else s.relative_gap,
-                          gapAbs=None if lp_only else s.absolute_gap, threads=s.threads,
-                          **kwargs)
+        cls = _HiGHS or pulp.HiGHS
+        if _HiGHS is not None:
+            kwargs.update(start=start, target=target)
+        return cls(msg=bool(log_path), timeLimit=s.time_limit,
+                   gapRel=None if lp_only else s.relative_gap,
+                   gapAbs=None if lp_only else s.absolute_gap, threads=s.threads, **kwargs)
     raise SolverError(f"unknown solver {s.solver!r}; use 'cbc' or 'highs'")
 
 
@@ -261,6 +369,7 @@ class _Call:
     bound: float | None    # the solver's best bound (MILP), objective units
     seconds: float
     hit: bool              # the call stopped at its time limit
+    x_relaxed: np.ndarray | None = None  # the values as solved (integers not rounded)
 
 
 _CBC_TIME = re.compile(r"Stopped on time|time limit", re.I)
@@ -299,16 +408,24 @@ class _Runner:
         return time.perf_counter() - self.t0
 
     def call(self, time_limit: float, gap: float | None, warm: bool = False,
-             suffix: str = "") -> _Call:
+             suffix: str = "", start: np.ndarray | None = None,
+             target: float | None = None, absolute_gap: float | None = None) -> _Call:
         """One solver call (at most the time left); with ``warm``, CBC starts from the
-        variables' current values."""
+        variables' current values; HiGHS starts from ``start`` (a whole plan) and stops
+        at a plan whose objective is at or below ``target`` [objective unit]."""
         s = self.settings
         limit = max(min(time_limit, self.remaining()), 1.0)
         run = SolveSettings(solver=s.solver, time_limit=limit,
                             relative_gap=gap if gap is not None else s.relative_gap,
-                            threads=s.threads, duals=False, absolute_gap=s.absolute_gap)
+                            threads=s.threads, duals=False,
+                            absolute_gap=absolute_gap if absolute_gap is not None
+                            else s.absolute_gap)
         log = self.log + suffix
-        solver = _make_solver(run, self.tmp, log, warm=warm)
+        if target is not None and math.isfinite(target):
+            target -= float(self.model.c0)  # the solver sees no constant
+        else:
+            target = None
+        solver = _make_solver(run, self.tmp, log, warm=warm, start=start, target=target)
         t0 = time.perf_counter()
         try:
             with _quiet():
@@ -319,6 +436,7 @@ class _Runner:
         self.calls += 1
         variables = self.variables
         x = np.array([v.varValue if v.varValue is not None else 0.0 for v in variables])
+        x_relaxed = x.copy()
         integ = np.array([v.cat == pulp.LpInteger for v in variables])
         x[integ] = np.round(x[integ])
         bound = None
@@ -336,7 +454,7 @@ class _Runner:
         hit = _limit_hit(self.prob, s, log, seconds, limit)
         self.hit |= hit
         return _Call(pulp.LpStatus[self.prob.status], self.prob.sol_status, x, bound,
-                     seconds, hit)
+                     seconds, hit, x_relaxed)
 
     def objective(self, x: np.ndarray) -> float:
         return float(self.model.c @ x + self.model.c0)
@@ -353,7 +471,9 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
     ``initial``: a whole plan of the same model (values of every variable) that CBC starts
     from (ignored by HiGHS, whose PuLP interface takes no start).
 
-    Strategy ``"two-phase"`` (default): the integer blocks marked ``phase=0`` (options
+    Strategy ``"neighbourhood"`` (default): the LP relaxation, then searches of its
+    neighbourhood (see :func:`_neighbourhood`); if those find no whole plan, the phased
+    route follows in the time left. Strategy ``"phased"``: the integer blocks marked ``phase=0`` (options
     bought, policy switches) are settled first with every other integer relaxed; then the
     blocks marked ``phase=2`` (larval trays, whose counts are large and whose LP values
     are nearly whole) are relaxed while the solver settles the other integers (cages);
@@ -370,7 +490,7 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
         phase[b.offset:b.offset + b.size] = b.phase
     phase2 = integ & (phase == 2)
     phase0 = integ & (phase == 0)
-    two = settings.strategy == "two-phase" and integ.any() and (
+    two = settings.strategy != "direct" and integ.any() and (
         (phase2.any() and (integ & ~phase2).any()) or phase0.any())
     start = np.asarray(initial, float) if initial is not None and settings.solver == "cbc" \
         else None
@@ -383,7 +503,9 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
             info = _interpret(settings, c, model, runner)
             x = c.x
         else:
-            info, x = _phased(runner, integ, phase0, phase2, start)
+            got = _neighbourhood(runner, integ, phase0, phase2) \
+                if settings.strategy == "neighbourhood" else None
+            info, x = got if got is not None else _phased(runner, integ, phase0, phase2, start)
         if initial is not None:
             info, x = _keep_start(model, np.asarray(initial, float), info, x, settings)
         duals: dict[str, np.ndarray] = {}
@@ -461,6 +583,183 @@ def _set_start(variables, start: np.ndarray | None) -> bool:
     for v, val in zip(variables, start):
         v.varValue = float(val)
     return True
+
+
+@contextlib.contextmanager
+def _bounded(variables, idx, lo, hi):
+    """Bound the variables ``idx`` to [lo, hi] for the duration of the block."""
+    saved = [(variables[k].lowBound, variables[k].upBound) for k in idx]
+    for k, a, b in zip(idx, lo, hi):
+        variables[k].lowBound, variables[k].upBound = float(a), float(b)
+    try:
+        yield
+    finally:
+        for k, (a, b) in zip(idx, saved):
+            variables[k].lowBound, variables[k].upBound = a, b
+
+
+def _target(bound: float | None, s: SolveSettings) -> float | None:
+    """The objective at which a plan closes the gap to ``bound`` [objective unit]."""
+    if bound is None or not math.isfinite(bound):
+        return None
+    g = max(s.relative_gap, CLOSED_GAP)
+    t = bound / (1 - g) if bound >= 0 else bound / (1 + g)
+    if s.absolute_gap is not None:
+        t = max(t, bound + s.absolute_gap)
+    return t
+
+
+def _in_use(model: LinearModel, cols: np.ndarray, used: np.ndarray) -> np.ndarray:
+    """For each column in ``cols``: whether any variable of its block with the same first
+    label (the day of a cage count, whatever its discard age) is in ``used``."""
+    out = np.zeros(cols.size, bool)
+    pos = {int(k): i for i, k in enumerate(cols)}
+    for b in model.blocks.values():
+        ks = [k for k in range(b.offset, b.offset + b.size) if k in pos]
+        if not ks:
+            continue
+        keys = [b.labels[k - b.offset][:1] for k in ks]
+        on = {key for key, k in zip(keys, ks) if used[k]}
+        for key, k in zip(keys, ks):
+            out[pos[k]] = key in on
+    return out
+
+
+def _neighbourhood(r: _Runner, integ, phase0, phase2):
+    """The default route of :func:`solve`: (SolveInfo, x), or None when it finds no
+    whole plan (the caller then takes the phased route in the time left).
+
+    1. The LP relaxation (every integer relaxed): its optimum is the bound every later
+       plan is measured against. With phase-0 integers (options bought, policy
+       switches), the MILP of those with every other integer relaxed instead: its
+       bound is the bound, its plan the guide, its phase-0 values kept.
+    2. The integers other than the phase-2 blocks (cages, options, switches) are
+       searched between the whole numbers either side of their LP values, with the
+       phase-2 integers (trays) relaxed; if that plan is far from the bound (more than
+       :data:`NEIGHBOURHOOD_WIDEN` times the gap), over their whole range.
+    3. Phase-0 integers stay fixed; a phase-1 integer may take its value from step 2 or
+       one more on the days that step 1 or 2 uses (a day's cages, any discard age), and
+       every phase-2 integer lies within one of its step-2 value's whole neighbours;
+       while the gap is still open, the same with one more cage allowed on every day,
+       then around each better plan (at most :data:`NEIGHBOURHOOD_ROUNDS` times, while each
+       finds a better plan).
+    4. Whenever the gap to the bound is still open, the whole problem, started from the
+       best plan (HiGHS; CBC from its values), in the time left.
+
+    Each MILP call stops as soon as a plan closes the gap to the LP bound. The
+    search in steps 2 and 3 is a neighbourhood of the LP optimum in the spirit of
+    relaxation-induced neighbourhood search (Danna, Rothberg & Le Pape 2005) and of
+    relaxation enforced neighbourhood search (Berthold 2014).
+    """
+    s = r.settings
+    budget = s.time_limit
+    variables, model = r.variables, r.model
+    if phase0.any():
+        # options and switches settled with every other integer relaxed: a MILP whose
+        # bound is far tighter than the LP's when options are priced by the week
+        with _continuous(variables, np.flatnonzero(integ & ~phase0)):
+            c = r.call(PHASE0_SHARE * budget, s.relative_gap / 5, suffix=".0")
+        if not r.has_plan(c):
+            if c.status in ("Infeasible", "Unbounded"):
+                return _interpret(s, c, model, r), c.x
+            return None
+        x_lp = c.x_relaxed
+        x_lp[phase0] = np.round(x_lp[phase0])
+        bound = c.bound
+        if bound is None:
+            return None
+    else:
+        with _continuous(variables, np.flatnonzero(integ)):
+            c = r.call(NEIGHBOURHOOD_LP_SHARE * budget, None, suffix=".lp")
+        if c.status != "Optimal":
+            if c.status in ("Infeasible", "Unbounded"):
+                return _interpret(s, c, model, r), c.x
+            return None
+        x_lp = c.x_relaxed
+        bound = r.objective(x_lp)
+    target = _target(bound, s)
+    cap = max(NEIGHBOURHOOD_MIN_SECONDS, NEIGHBOURHOOD_LP_TIMES * c.seconds)
+    # a neighbourhood may also stop once its own gap is within the slack the LP bound
+    # leaves (CBC takes no target; HiGHS stops at the target itself)
+    slack = None if target is None or s.solver != "cbc" else max(target - bound, 0.0)
+    rest = np.flatnonzero(integ & ~phase2)
+    second = np.flatnonzero(phase2)
+    lo = np.floor(x_lp + 1e-6)
+    hi = np.ceil(x_lp - 1e-6)
+    lb, ub = model.lb, model.ub
+    with _continuous(variables, second), \
+            _bounded(variables, rest, np.maximum(lo[rest], lb[rest]),
+                     np.minimum(np.maximum(hi[rest], lo[rest]), ub[rest])):
+        ca = r.call(min(NEIGHBOURHOOD_A_SHARE * budget, cap), s.relative_gap / 2.5,
+                    suffix=".a",
+                    target=_target(bound, dataclasses.replace(
+                        s, relative_gap=s.relative_gap / 2.5)))
+    xa = ca.x_relaxed if r.has_plan(ca) else None
+    if xa is None or _gap(r.objective(xa), bound) > NEIGHBOURHOOD_WIDEN * s.relative_gap:
+        # the rounded neighbourhood is poor (whole cages do not fit where the LP's
+        # fractions do): the cages over their whole range, trays still relaxed
+        with _continuous(variables, second), \
+                _bounded(variables, rest, lb[rest], ub[rest]):
+            cw = r.call(min(PHASE1_SHARE * budget, r.remaining()), s.relative_gap / 2.5,
+                        suffix=".a2", target=_target(bound, dataclasses.replace(
+                            s, relative_gap=s.relative_gap / 2.5)))
+        if r.has_plan(cw) and (xa is None or
+                               r.objective(cw.x_relaxed) < r.objective(xa) - 1e-9):
+            xa = cw.x_relaxed
+    if xa is None:
+        return None
+    phase = np.ones(model.n, int)
+    for b in model.blocks.values():
+        phase[b.offset:b.offset + b.size] = b.phase
+    first = np.flatnonzero(integ & (phase == 1))
+    zero = np.flatnonzero(integ & (phase == 0))
+    a_first = np.round(xa[first])
+    grow = _in_use(model, first, (x_lp > 1e-6) | (np.abs(xa) > 1e-6))
+    b_lo = np.concatenate([np.round(xa[zero]), a_first,
+                           np.maximum(np.floor(xa[second] + 1e-6) - 1, lb[second])])
+    b_hi = np.concatenate([np.round(xa[zero]),
+                           np.where(grow, np.minimum(a_first + 1, ub[first]), a_first),
+                           np.minimum(np.ceil(xa[second] - 1e-6) + 1, ub[second])])
+    idx = np.concatenate([zero, first, second])
+    best_x, best_obj = None, math.inf
+    with _bounded(variables, idx, b_lo, b_hi):
+        cb = r.call(min(NEIGHBOURHOOD_B_SHARE * budget, cap), s.relative_gap / 2, suffix=".b",
+                    target=target, absolute_gap=slack)
+    if r.has_plan(cb):
+        best_x, best_obj = cb.x, r.objective(cb.x)
+    centre = np.concatenate([np.round(xa[zero]), a_first, xa[second]])
+    for round_ in range(NEIGHBOURHOOD_ROUNDS):
+        # 3b: every day's cages may take one more than step 2's (later: the best
+        # plan's), its trays one either side; repeated from each better plan
+        if r.remaining() <= 2.0 or not _open(best_obj, bound, s):
+            break
+        c_lo, c_hi = centre.copy(), centre.copy()
+        nz, nf = zero.size, first.size
+        c_hi[nz:nz + nf] = np.minimum(centre[nz:nz + nf] + 1, ub[first])
+        c_lo[nz + nf:] = np.maximum(np.floor(centre[nz + nf:] + 1e-6) - 1, lb[second])
+        c_hi[nz + nf:] = np.minimum(np.ceil(centre[nz + nf:] - 1e-6) + 1, ub[second])
+        with _bounded(variables, idx, c_lo, c_hi):
+            if best_x is not None:
+                _set_start(variables, best_x)
+            cc = r.call(min(NEIGHBOURHOOD_B_SHARE * budget, cap), s.relative_gap / 2,
+                        suffix=f".c{round_}", warm=best_x is not None, start=best_x,
+                        target=target, absolute_gap=slack)
+        if not (r.has_plan(cc) and r.objective(cc.x) < best_obj - 1e-9):
+            break
+        best_x, best_obj = cc.x, r.objective(cc.x)
+        centre = best_x[idx]
+    if r.remaining() > 2.0 and _open(best_obj, bound, s):
+        if best_x is not None:
+            _set_start(variables, best_x)
+        cf = r.call(r.remaining(), None, warm=best_x is not None, suffix=".3",
+                    start=best_x, target=target)
+        if r.has_plan(cf) and r.objective(cf.x) < best_obj - 1e-9:
+            best_x, best_obj = cf.x, r.objective(cf.x)
+        if cf.bound is not None and cf.bound > bound:
+            bound = cf.bound
+    if best_x is None:
+        return None
+    return _final(s, best_obj, bound, r.elapsed(), r.hit), best_x
 
 
 def _phased(r: _Runner, integ, phase0, phase2, start):
