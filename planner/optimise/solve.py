@@ -353,6 +353,16 @@ def _cbc_bound(log_path: str | None) -> float | None:
     return float(m[-1]) if m else None
 
 
+def _cbc_proven(log_path: str | None) -> bool:
+    """Whether CBC's log says it proved its plan optimal."""
+    if not log_path or not os.path.exists(log_path):
+        return False
+    with contextlib.suppress(OSError):
+        return bool(_CBC_PROVEN.search(open(log_path, encoding="utf-8",
+                                            errors="replace").read()))
+    return False
+
+
 def _check_available(name: str) -> None:
     if name not in available_solvers():
         extra = " (install it with: pip install highspy)" if name == "highs" else ""
@@ -449,6 +459,9 @@ class _Runner:
             bound = _cbc_bound(log)
         if bound is not None:
             bound += float(self.model.c0)  # the solvers are not given the objective's constant
+        if bound is not None and s.solver == "cbc" and _cbc_proven(log):
+            # a proven optimum is its own bound; CBC's log rounds the objective it prints
+            bound = self.objective(x)
         if not integ.any():
             bound = None  # an LP's optimum is its own bound; set by the caller
         hit = _limit_hit(self.prob, s, log, seconds, limit)
