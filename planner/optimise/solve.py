@@ -721,11 +721,8 @@ def _neighbourhood(r: _Runner, integ, phase0, phase2):
             xa = cw.x_relaxed
     if xa is None:
         return None
-    phase = np.ones(model.n, int)
-    for b in model.blocks.values():
-        phase[b.offset:b.offset + b.size] = b.phase
-    first = np.flatnonzero(integ & (phase == 1))
-    zero = np.flatnonzero(integ & (phase == 0))
+    first = np.flatnonzero(integ & ~phase0 & ~phase2)
+    zero = np.flatnonzero(phase0)
     a_first = np.round(xa[first])
     grow = _in_use(model, first, (x_lp > 1e-6) | (np.abs(xa) > 1e-6))
     b_lo = np.concatenate([np.round(xa[zero]), a_first,
