@@ -4,10 +4,10 @@ Run: python bench/solve_calls.py [--weeks N] [--solver highs|cbc] [--time-limit 
 
 Plans the demo for ``--weeks`` weeks and prints one line per solver call of the default
 route (LP relaxation, then the neighbourhood searches, then the whole problem when the
-gap is still open): its seconds, the limit it was given, whether it hit that limit and
-the bound it reported, then the whole solve with its gap. One run, not a median: use it
-to see which step dominates, and bench/plan.py for the figures. Measure on an idle
-machine.
+gap is still open): its time [s], the limit it was given [s], whether it hit that limit
+and the bound it reported [currency], then the whole solve with its gap. One run, not a
+median: use it to see which step dominates, and bench/plan.py for the figures. Measure
+on an idle machine.
 """
 
 from __future__ import annotations
@@ -36,7 +36,8 @@ def main() -> None:
     built = build_model(compile_horizon(scn, start, horizon_weeks=args.weeks))
     print(f"demo, {args.weeks} weeks, solver {st.solver}, time limit {st.time_limit:g} s, "
           f"gap {st.relative_gap:g}")
-    print(f"{'call':>4} {'seconds':>8} {'limit s':>8} {'hit':>5} {'bound':>14}")
+    cur = scn.costs.currency
+    print(f"{'call':>4} {'time [s]':>8} {'limit [s]':>9} {'hit':>5} {'bound [' + cur + ']':>16}")
     runner_call = solve_module._Runner.call
     count = [0]
 
@@ -45,8 +46,8 @@ def main() -> None:
         c = runner_call(self, time_limit, *a, **k)
         count[0] += 1
         bound = "-" if c.bound is None else f"{c.bound:,.1f}"
-        print(f"{count[0]:>4} {time.perf_counter() - t0:8.2f} {time_limit:8.1f} "
-              f"{str(c.hit):>5} {bound:>14}", flush=True)
+        print(f"{count[0]:>4} {time.perf_counter() - t0:8.2f} {time_limit:9.1f} "
+              f"{str(c.hit):>5} {bound:>16}", flush=True)
         return c
 
     solve_module._Runner.call = timed_call
@@ -58,7 +59,8 @@ def main() -> None:
         solve_module._Runner.call = runner_call
     info = sol.info
     gap = "-" if info.gap is None else f"{100 * info.gap:.2f}%"
-    print(f"whole solve {wall:.2f} s, status {info.status}, gap {gap}: {info.message}")
+    print(f"whole solve {wall:.2f} s, {count[0]} calls (the solve counts {info.calls}), "
+          f"status {info.status}, gap {gap}: {info.message}")
 
 
 if __name__ == "__main__":
