@@ -21,9 +21,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _timing import report  # noqa: E402
 
 from planner.optimise import build_model, compile_horizon, settings_for, solve  # noqa: E402
-from planner.optimise.capacity import capacity  # noqa: E402
-from planner.optimise.expansion import expand  # noqa: E402
-from planner.optimise.quote import quote  # noqa: E402
+from planner.answers.capacity import capacity  # noqa: E402
+from planner.answers.expansion import expand  # noqa: E402
+from planner.answers.quote import quote  # noqa: E402
 from planner.optimise.standard_week import start_batches  # noqa: E402
 from planner.scenario import demo_scenario_path, load_scenario  # noqa: E402
 

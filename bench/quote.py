@@ -24,8 +24,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from _timing import report  # noqa: E402
 
 from planner.optimise import settings_for  # noqa: E402
-from planner.optimise.expansion import sweep  # noqa: E402
-from planner.optimise.quote import quote  # noqa: E402
+from planner.answers.expansion import sweep  # noqa: E402
+from planner.answers.quote import quote  # noqa: E402
 from planner.scenario import demo_scenario_path, load_scenario  # noqa: E402
 
 

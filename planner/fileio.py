@@ -11,7 +11,51 @@ from pathlib import Path
 
 from planner.errors import InputError
 
-__all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text", "save_workbook"]
+__all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text", "save_workbook",
+           "input_file", "MAX_TEXT_BYTES", "MAX_WORKBOOK_BYTES", "short_name"]
+
+#: Largest text input (TOML, CSV) read [bytes]: far above any real scenario or table.
+MAX_TEXT_BYTES = 20_000_000
+#: Largest input workbook read [bytes].
+MAX_WORKBOOK_BYTES = 50_000_000
+#: Longest file name shown in a message [characters]; longer ones are shortened.
+MAX_NAME_CHARS = 120
+
+
+def short_name(path: str | Path, limit: int = MAX_NAME_CHARS) -> str:
+    """A path as shown in a message: shortened in the middle when over ``limit``
+    characters (a message never repeats a 100 kB name)."""
+    text = str(path)
+    if len(text) <= limit:
+        return text
+    keep = (limit - 5) // 2
+    return f"{text[:keep]} ... {text[-keep:]} ({len(text)} characters)"
+
+
+def input_file(path: str | Path, kind: str, max_bytes: int) -> Path:
+    """Check that ``path`` is a regular file of at most ``max_bytes`` before anything
+    reads it: a missing file, a folder, a device or FIFO (which would hang or never end),
+    a name the system refuses (too long) or an oversized file is one clear InputError.
+    ``kind`` names the expected file ('CSV', 'TOML', '.xlsx workbook')."""
+    import stat
+    path = Path(path)
+    shown = short_name(path)
+    try:
+        st = path.stat()  # follows links: a link to /dev/zero is a device
+    except FileNotFoundError:
+        raise InputError("file not found", source=shown) from None
+    except OSError as exc:  # name too long, permission, a loop of links
+        raise InputError(f"cannot open this file ({exc.strerror or type(exc).__name__})",
+                         source=shown) from None
+    if stat.S_ISDIR(st.st_mode):
+        raise InputError(f"this is a folder, not a {kind} file", source=shown)
+    if not stat.S_ISREG(st.st_mode):
+        raise InputError(f"not a regular file (a device, pipe or socket); give a {kind} "
+                         "file on disk", source=shown)
+    if st.st_size > max_bytes:
+        raise InputError(f"the file is {st.st_size:,} bytes, over the {max_bytes:,}-byte "
+                         f"limit of a {kind} input", source=shown)
+    return path
 
 
 @contextmanager
@@ -56,13 +100,17 @@ def write_atomic(target: str | Path, writer: Callable[[Path], None]) -> Path:
 def read_text(path: str | Path, kind: str, hint: str = "") -> str:
     """Read a UTF-8 text input file; a missing file, a folder or binary content is one
     clear InputError. ``kind`` names the expected file ('CSV', 'TOML')."""
-    path = Path(path)
+    path = input_file(path, kind, MAX_TEXT_BYTES)
     try:
-        return path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputError("file not found", source=str(path)) from None
-    except IsADirectoryError:
-        raise InputError(f"this is a folder, not a {kind} file", source=str(path)) from None
+        with open(path, "rb") as f:
+            data = f.read(MAX_TEXT_BYTES + 1)  # the file may grow after the check
+        if len(data) > MAX_TEXT_BYTES:
+            raise InputError(f"the file is over the {MAX_TEXT_BYTES:,}-byte limit of a "
+                             f"{kind} input", source=short_name(path))
+        return data.decode("utf-8-sig")
+    except OSError as exc:
+        raise InputError(f"cannot read this file ({exc.strerror or type(exc).__name__})",
+                         source=short_name(path)) from None
     except UnicodeDecodeError:
         raise InputError("the file is not UTF-8 text" + (f" ({hint})" if hint else ""),
                          source=path.name) from None

@@ -11,12 +11,11 @@ from pathlib import Path
 from planner.cli.format import checked, dumps, num, table
 from planner.cli.plan_cmds import solver_options
 from planner.errors import InputError, NoPlanError
-from planner.optimise import settings_for
-from planner.optimise.capacity import capacity
-from planner.optimise.expansion import expand, progress_bar, sweep
-from planner.optimise.quote import quote
-from planner.reports import CAUTIONS, write_plan_workbook, write_sweep_workbook
+from planner.cautions import CAUTIONS
 from planner.scenario import load_scenario
+
+# The answers and the report writers are imported in the handlers: building the parser
+# (every command, `check` too) must not load the optimiser.
 
 __all__ = ["register", "parse_sweep"]
 
@@ -101,6 +100,8 @@ def register(sub) -> None:
 
 
 def _settings(scn, args):
+    from planner.optimise import settings_for
+
     return settings_for(scn, solver=args.solver, time_limit=args.time_limit,
                         relative_gap=args.gap)
 
@@ -205,6 +206,9 @@ def _quote_units(cur: str) -> dict[str, str]:
 
 
 def _cmd_quote(args) -> int:
+    from planner.answers.quote import quote
+    from planner.reports import write_plan_workbook
+
     scn = load_scenario(args.scenario)
     first = _week(scn, args.start, "--start")
     q = quote(scn, args.weekly, args.weeks, start_week=first, customer=args.customer,
@@ -234,6 +238,8 @@ def _cmd_quote(args) -> int:
 # -- capacity -----------------------------------------------------------------------------
 
 def _cmd_capacity(args) -> int:
+    from planner.answers.capacity import capacity
+
     scn = load_scenario(args.scenario)
     res = capacity(scn, _settings(scn, args))
     if args.json:
@@ -253,6 +259,9 @@ def _cmd_capacity(args) -> int:
 # -- expand -------------------------------------------------------------------------------
 
 def _cmd_expand(args) -> int:
+    from planner.answers.expansion import expand, progress_bar, sweep
+    from planner.reports import write_plan_workbook, write_sweep_workbook
+
     scn = load_scenario(args.scenario)
     if args.target is None and args.sweep is None:
         raise InputError("give --target V or --sweep LOW:HIGH:STEP", place="expand")

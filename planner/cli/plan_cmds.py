@@ -11,11 +11,12 @@ from pathlib import Path
 
 from planner.cli.format import checked, dumps, kv_table, num, table
 from planner.cli.progress import Progress
-from planner.optimise import plan_horizon, settings_for
-from planner.reports import CAUTIONS, write_csvs, write_plan_workbook
-from planner.risk.margin import MAX_MARGIN, safety_margin
-from planner.risk.simulate import has_spreads, replay
+from planner.cautions import CAUTIONS
+from planner.risk import MAX_MARGIN
 from planner.scenario import demo_scenario_path, load_scenario
+
+# The optimiser, the risk replay and the report writers are imported where they are used:
+# building the parser (every command, `check` too) must not load them.
 
 __all__ = ["register", "solver_options", "risk_options", "run_plan", "run_margin",
            "margin_lines", "fill_lines", "fill_json", "risk_rows", "EXIT_NO_PLAN",
@@ -105,6 +106,8 @@ def register(sub) -> None:
 @contextlib.contextmanager
 def _solving(scn, args, label: str):
     """The command line's solve settings, with the progress line while inside."""
+    from planner.optimise import settings_for
+
     show = not args.quiet and sys.stdout.isatty() and sys.stderr.isatty()
     with tempfile.TemporaryDirectory(prefix="broodline-log-") as tmp:
         log = str(Path(tmp) / "solver.log")
@@ -116,6 +119,8 @@ def _solving(scn, args, label: str):
 
 def run_plan(scn, args, label: str):
     """Solve with the command line's solver options and the progress line."""
+    from planner.optimise import plan_horizon
+
     with _solving(scn, args, label) as settings:
         return plan_horizon(scn, settings)
 
@@ -123,6 +128,8 @@ def run_plan(scn, args, label: str):
 def run_margin(scn, args, label: str):
     """The safety-margin search (:func:`planner.risk.margin.safety_margin`) with the
     command line's target, replicates, seed, largest margin and solver options."""
+    from planner.risk.margin import safety_margin
+
     with _solving(scn, args, f"{label}: searching the safety margin") as settings:
         return safety_margin(scn, args.target_fill, replicates=args.replicates,
                              seed=args.seed, settings=settings, max_margin=args.max_margin)
@@ -264,6 +271,9 @@ def _finish(res, args, workbook: Path, scenario_file: str | None, margin=None) -
     """Write and print the plan; with ``margin`` (a :class:`planner.risk.MarginResult`)
     the plan is the margin's, else the plan is replayed when the colony model has
     spreads."""
+    from planner.reports import write_csvs, write_plan_workbook
+    from planner.risk.simulate import has_spreads, replay
+
     if not res.info.has_plan:
         print(f"no plan: {res.info.message}", file=sys.stderr)
         if args.json:
@@ -283,7 +293,7 @@ def _finish(res, args, workbook: Path, scenario_file: str | None, margin=None) -
         extra = {"margin": margin.summary(), "fill_probability": fill_json(risk,
                                                                           margin.from_week)}
     elif has_spreads(res.scenario.colony):
-        from planner.optimise.quote import default_start_week
+        from planner.answers.quote import default_start_week
         week = default_start_week(res.scenario)
         fill = replay(res, replicates=args.replicates, seed=args.seed)
         risk_text = fill_lines(fill, week, suggest=True)

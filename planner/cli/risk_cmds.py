@@ -8,9 +8,7 @@ from planner.cli.format import dumps, num, table
 from planner.cli.plan_cmds import (RISK_CAUTION, margin_lines, risk_options, risk_rows,
                                    run_margin, solver_options)
 from planner.errors import NoPlanError
-from planner.optimise import plan_horizon, settings_for
-from planner.reports import CAUTIONS, write_plan_workbook
-from planner.risk import replay
+from planner.cautions import CAUTIONS
 from planner.scenario import load_scenario
 
 __all__ = ["register"]
@@ -35,6 +33,10 @@ def register(sub) -> None:
 
 
 def _cmd_risk(args) -> int:
+    from planner.optimise import plan_horizon, settings_for
+    from planner.reports import write_plan_workbook
+    from planner.risk import replay
+
     scn = load_scenario(args.scenario)
     cur = scn.costs.currency
     margin = None

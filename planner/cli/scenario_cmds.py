@@ -162,7 +162,7 @@ def calendar_text(cal: dict) -> str:
 
 def _cmd_check(args) -> int:
     from planner.errors import BroodlineError
-    from planner.optimise.checkcap import sustainable_volume
+    from planner.answers.checkcap import sustainable_volume
     scn = load_scenario(args.scenario)
     rep = check_report(scn)
     if rep["orders"]["largest_volume"] > 0:

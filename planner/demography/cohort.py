@@ -46,9 +46,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:  # pandas is loaded where a table is made: `check` does without it
+    import pandas as pd
 
 from planner.csvtable import read_csv_table
 from planner.demography.lifetable import LifeTable
@@ -273,6 +276,8 @@ class CohortAnalysis:
         return out
 
     def to_frame(self) -> pd.DataFrame:
+        import pandas as pd
+
         lt = self.life_table
         df = pd.DataFrame({"age": lt.age, "lx": lt.lx, "mx": lt.mx})
         if self.male_lx is not None:

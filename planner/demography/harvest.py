@@ -39,9 +39,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:  # pandas is loaded where a table is made: `check` does without it
+    import pandas as pd
 
 from planner.demography.lifetable import LifeTable
 from planner.demography.matrix import StageMatrix
@@ -87,9 +90,21 @@ class SingleStageHarvest:
     output_per_female: float
     output_per_female_closed_form: float | None
     modified_survival: np.ndarray
-    stationary_structure: pd.Series
+    structure_age: np.ndarray
+    structure_share: np.ndarray
     age_unit: str = "day"
     female_fraction: float | None = None
+
+    @property
+    def stationary_structure(self):
+        """The stationary age structure (share of the colony by age [-], sums to 1) as a
+        pandas Series indexed by age [unit]."""
+        import pandas as pd
+
+        out = pd.Series(self.structure_share, index=self.structure_age,
+                        name="stationary_structure")
+        out.index.name = "age"
+        return out
 
     @property
     def insects_per_female(self) -> float | None:
@@ -108,7 +123,7 @@ class SingleStageHarvest:
             "output_per_female": self.output_per_female,
             "output_per_female_closed_form": self.output_per_female_closed_form,
             "stationary_structure": {f"{a:g}": float(c) for a, c in
-                                     self.stationary_structure.items()},
+                                     zip(self.structure_age, self.structure_share)},
             "age_unit": self.age_unit,
         }
 
@@ -175,9 +190,6 @@ def single_stage_harvest(table: LifeTable, harvest_age: float, discard_age: floa
     h = float(_h_from_r0(r0_theta, r0_delta))
     lstar = np.where(np.arange(age.size) <= it, lx, (1.0 - h) * lx)
     lstar[idl + 1:] = 0.0
-    structure = pd.Series(lstar[: idl + 1] / lstar[: idl + 1].sum(), index=age[: idl + 1],
-                          name="stationary_structure")
-    structure.index.name = "age"
     adults = float(lstar[ie: idl + 1].sum())
     p = h * float(lx[it]) / adults
     closed = None
@@ -187,7 +199,8 @@ def single_stage_harvest(table: LifeTable, harvest_age: float, discard_age: floa
         harvest_age=float(age[it]), discard_age=float(age[idl]), emergence_age=float(age[ie]),
         net_reproductive_rate=r0_delta, harvest_fraction=h, output_per_female=p,
         output_per_female_closed_form=closed, modified_survival=lstar,
-        stationary_structure=structure, age_unit=unit, female_fraction=table.female_fraction)
+        structure_age=age[: idl + 1].copy(),
+        structure_share=lstar[: idl + 1] / lstar[: idl + 1].sum(), age_unit=unit, female_fraction=table.female_fraction)
 
 
 def harvest_grid(table: LifeTable, emergence_age: float | None = None,
@@ -210,6 +223,8 @@ def harvest_grid(table: LifeTable, emergence_age: float | None = None,
         ``net_reproductive_rate`` (R0(delta)), ``harvest_fraction`` (H) and
         ``output_per_female`` (P) [per unit of age].
     """
+    import pandas as pd
+
     age, lx = table.age, table.lx
     eps = table.first_laying_age if emergence_age is None else emergence_age
     ie = table.index_of(eps, "emergence age")

@@ -33,14 +33,28 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
-from scipy.optimize import brentq
-from scipy.special import logsumexp
+
+if TYPE_CHECKING:  # pandas is loaded where a table is made: `check` does without it
+    import pandas as pd
 
 from planner.csvtable import read_csv_table
 from planner.errors import DemographyError, InputError
+
+
+def _logsumexp(a) -> float:
+    """ln(sum(exp(a))) without overflow (the max is taken out first); -inf for an
+    empty or all -inf input. Same result as ``scipy.special.logsumexp`` for 1-D input;
+    kept here so that loading a life table does not import scipy."""
+    a = np.asarray(a, dtype=float)
+    if a.size == 0:
+        return -math.inf
+    m = float(np.max(a))
+    if not math.isfinite(m):
+        return m
+    return m + math.log(float(np.sum(np.exp(a - m))))
 
 __all__ = [
     "LifeTable",
@@ -86,9 +100,9 @@ def intrinsic_rate(age, lx, mx) -> float:
     """Intrinsic rate of increase ``r`` [unit^-1]: the root of Euler–Lotka.
 
     Solves ``sum_x exp(-r x) lx mx = 1`` (in the log form
-    ``logsumexp(log(lx mx) - r x) = 0``, which is monotone in r) with Brent's method in
-    the bracket ``[ln R0 / x_max, ln R0 / x_min]`` over the ages that carry births, to
-    an absolute tolerance of 1e-12. ``r`` has the sign of ``R0 - 1``.
+    ``logsumexp(log(lx mx) - r x) = 0``, convex and decreasing in r) with Newton's method
+    from the low end of the bracket ``[ln R0 / x_max, ln R0 / x_min]`` over the ages that
+    carry births, guarded by the bracket, to a relative step of 1e-14. ``r`` has the sign of ``R0 - 1``.
 
     Raises
     ------
@@ -118,20 +132,37 @@ def intrinsic_rate(age, lx, mx) -> float:
                               "undefined; check the age column")
     logw = np.log(w)
     target = math.log1p(-w0)  # sum_{x>0} w exp(-r x) = 1 - w0
-    r0 = float(logsumexp(logw)) - target  # ln of (R0 - w0) / (1 - w0)
+    r0 = float(_logsumexp(logw)) - target  # ln of (R0 - w0) / (1 - w0)
     lo, hi = sorted((r0 / float(x.max()), r0 / float(x.min())))
 
-    def g(r: float) -> float:
-        return float(logsumexp(logw - r * x)) - target
+    def g(r: float) -> tuple[float, float]:
+        """The Euler–Lotka residual and its slope in r (minus the mean birth age)."""
+        e = logw - r * x
+        s = _logsumexp(e)
+        return s - target, -float(np.sum(x * np.exp(e - s)))
 
     if hi - lo <= 1e-15 * max(1.0, abs(hi)):
         return lo
-    glo, ghi = g(lo), g(hi)
-    if glo == 0.0:
-        return lo
-    if ghi == 0.0:
-        return hi
-    return float(brentq(g, lo, hi, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=500))
+    # g is convex and decreasing in r, so Newton's method started where g >= 0 (the
+    # bracket's low end) climbs to the root from below without overshooting; the
+    # bracket still guards every step against rounding.
+    r = lo
+    for _ in range(200):
+        val, slope = g(r)
+        if val == 0.0 or slope == 0.0:
+            return r
+        if val > 0:
+            lo = r
+        else:
+            hi = r
+        step = -val / slope
+        nxt = r + step
+        if not lo <= nxt <= hi:
+            nxt = 0.5 * (lo + hi)
+        if abs(nxt - r) <= 1e-14 * max(1.0, abs(r)):
+            return nxt
+        r = nxt
+    return r
 
 
 def cohort_generation_time(age, lx, mx) -> float:
@@ -170,7 +201,7 @@ def stable_age_distribution(age, lx, r: float) -> np.ndarray:
     age, lx, _ = _arrays(age, lx, lx)
     with np.errstate(divide="ignore"):
         logc = np.log(lx) - r * age
-    return np.exp(logc - logsumexp(logc))
+    return np.exp(logc - _logsumexp(logc))
 
 
 def reproductive_values(age, lx, mx, r: float) -> np.ndarray:
@@ -412,6 +443,8 @@ class LifeTable:
 
     def to_frame(self) -> pd.DataFrame:
         """The table with its derived columns: age, lx, mx, lx*mx, c_x, v_x."""
+        import pandas as pd
+
         r = self.intrinsic_rate
         return pd.DataFrame({
             "age": self.age, "lx": self.lx, "mx": self.mx, "lxmx": self.lx * self.mx,

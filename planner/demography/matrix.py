@@ -21,9 +21,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:  # pandas is loaded where a table is made: `check` does without it
+    import pandas as pd
 
 from planner.csvtable import parse_number, read_csv_table
 from planner.errors import DemographyError, InputError
@@ -211,6 +214,8 @@ class StageMatrix:
 
     def to_frame(self) -> pd.DataFrame:
         """The matrix as a DataFrame (rows = to, columns = from)."""
+        import pandas as pd
+
         return pd.DataFrame(self.a, index=list(self.stages), columns=list(self.stages))
 
 

@@ -8,11 +8,28 @@ Layers, each in its own module: :mod:`.data` (the scenario as day-indexed arrays
 
 from __future__ import annotations
 
-from planner.optimise.build import FAMILIES, build_model
-from planner.optimise.data import PlanData, StartBatches, compile_cycle, compile_horizon
-from planner.optimise.results import PlanResult, read_back
+import importlib
+from typing import TYPE_CHECKING
+
+# eager: `solve` names both the module and its function, and the function must win
 from planner.optimise.solve import SolveSettings, available_solvers, solve
-from planner.optimise.verify import verify_plan
+
+if TYPE_CHECKING:
+    from planner.optimise.data import StartBatches
+    from planner.optimise.results import PlanResult
+
+# The layers are loaded on first use (PEP 562): `check` builds one LP and needs neither
+# the read-back (pandas) nor the verifier.
+_WHERE = {"FAMILIES": "build", "build_model": "build", "PlanData": "data",
+          "StartBatches": "data", "compile_cycle": "data", "compile_horizon": "data",
+          "PlanResult": "results", "read_back": "results",
+          "verify_plan": "verify"}
+
+
+def __getattr__(name: str):
+    if name in _WHERE:
+        return getattr(importlib.import_module(f"planner.optimise.{_WHERE[name]}"), name)
+    raise AttributeError(f"module 'planner.optimise' has no attribute {name!r}")
 
 __all__ = ["plan_horizon", "plan_standard_week", "settings_for", "PlanResult", "PlanData",
            "SolveSettings", "StartBatches", "FAMILIES", "verify_plan", "available_solvers",
@@ -39,7 +56,11 @@ def plan_horizon(scn, settings: SolveSettings | None = None, *, start: StartBatc
     import dataclasses
     import time
 
+    from planner.optimise.build import build_model
+    from planner.optimise.data import compile_horizon
+    from planner.optimise.results import read_back
     from planner.optimise.standard_week import start_batches
+
     t0 = time.perf_counter()
     settings = settings or settings_for(scn)
     if start is None:
@@ -57,6 +78,10 @@ def plan_standard_week(scn, weekly_volume: float, settings: SolveSettings | None
                        relax: bool = False, all_days_alike: bool = False,
                        cycle_days: int | None = None) -> PlanResult:
     """The standard week (a cyclic plan) for a constant weekly volume [million/week]."""
+    from planner.optimise.build import build_model
+    from planner.optimise.data import compile_cycle
+    from planner.optimise.results import read_back
+
     data = compile_cycle(scn, weekly_volume, cycle_days, all_days_alike)
     built = build_model(data, relax=relax)
     return read_back(built, solve(built.model, settings or settings_for(scn)))

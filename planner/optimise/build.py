@@ -230,7 +230,7 @@ def build_model(data: PlanData, *, relax: bool = False,
             max_options[attr] = float((adds.max(axis=1) *
                                        [o.max_units for o in data.options]).sum())
     # tight bounds (they strengthen the LP relaxation a great deal); where shadow prices
-    # of the rows are wanted, the caller loosens them (planner.optimise.capacity)
+    # of the rows are wanted, the caller loosens them (planner.answers.capacity)
     cage_ub = float(data.cage_slots.max() + max_options["cage_slots"])
     kitchen_max = data.kitchen + (data.option_adds("diet_kg").T @
                                   np.array([o.max_units for o in data.options], float)

@@ -22,6 +22,7 @@ from openpyxl.worksheet.pagebreak import Break
 
 from planner.demography import single_stage_harvest
 from planner.errors import DemographyError, InputError
+from planner.cautions import CAUTIONS
 from planner.fileio import save_workbook
 from planner.reports.tables import (daily_table, daily_units, utilisation_summary,
                                     weekly_costs, weekly_table)
@@ -32,12 +33,6 @@ __all__ = ["write_plan_workbook", "write_sweep_workbook", "SHEET_NAMES", "CAUTIO
 SHEET_NAMES = ["Summary", "Orders", "Daily plan", "Tasks", "Cage register", "Tray register",
                "Rooms", "Labour", "Costs", "Bottlenecks", "Demography"]
 
-CAUTIONS = [
-    "Plans are estimates from the colony's life table, an average of past cohorts; real "
-    "batches vary. Check the plan against what the rooms show every day.",
-    "Biosafety, irradiation, sterility assurance and release rules are matters for licensed "
-    "staff and local codes; this plan does not cover them.",
-]
 
 _STAMP = dt.datetime(2000, 1, 1)
 _BOLD = Font(bold=True)

@@ -31,6 +31,7 @@ from planner.optimise.data import compile_horizon
 from planner.optimise.results import PlanResult, operating_cost, read_back
 from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
+from planner.risk import MAX_MARGIN
 from planner.risk.simulate import RiskResult, replay
 from planner.scenario.schema import Scenario, Variation
 
@@ -39,9 +40,8 @@ __all__ = ["plan_with_margin", "safety_margin", "MarginResult", "FIRST_STEP", "M
 
 #: The first margin the doubling tries [-].
 FIRST_STEP = 0.02
-#: The largest margin the search tries unless told otherwise [-] (five doublings of
-#: :data:`FIRST_STEP`).
-MAX_MARGIN = 0.64
+# MAX_MARGIN, the largest margin the search tries unless told otherwise [-], is five
+# doublings of FIRST_STEP; it lives in the package so the command line reads it cheaply.
 #: A plan week short of its raised orders by more than this share cannot deliver the
 #: margin there [-].
 PLAN_SHORT_SHARE = 1e-3
@@ -152,7 +152,7 @@ def safety_margin(scn: Scenario, target_fill: float, replicates: int = 2000, see
     Raises :class:`planner.errors.NoPlanError` only when there is no plan without a margin.
     """
     from planner.optimise import settings_for
-    from planner.optimise.quote import default_start_week
+    from planner.answers.quote import default_start_week
     week = from_week or default_start_week(scn)
     if not 0 < target_fill < 1:
         raise InputError(f"target fill = {target_fill}: give a probability between 0 and 1, "

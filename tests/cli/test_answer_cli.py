@@ -6,7 +6,7 @@ import json
 import openpyxl
 import pytest
 
-from planner.cli import risk_cmds
+import planner.optimise
 from planner.cli.answer_cmds import parse_sweep
 from planner.cli.main import main
 from planner.scenario import demo_scenario_path
@@ -44,7 +44,7 @@ def test_parse_sweep_includes_the_high_end():
 
 
 def test_risk_json_and_workbook(tmp_path, monkeypatch, fly_plan, capsys):
-    monkeypatch.setattr(risk_cmds, "plan_horizon", lambda scn, settings: fly_plan)
+    monkeypatch.setattr(planner.optimise, "plan_horizon", lambda scn, settings: fly_plan)
     out = tmp_path / "risk.xlsx"
     code = main(["risk", FLY, "--replicates", "300", "--seed", "5", "--json", "-o", str(out)])
     text, err = capsys.readouterr()
@@ -93,7 +93,7 @@ def test_no_plan_is_one_line_and_exit_3(monkeypatch, capsys):
     from types import SimpleNamespace
     no_plan = SimpleNamespace(info=SimpleNamespace(has_plan=False,
                                                    message="no plan within the time limit"))
-    monkeypatch.setattr(risk_cmds, "plan_horizon", lambda scn, settings: no_plan)
+    monkeypatch.setattr(planner.optimise, "plan_horizon", lambda scn, settings: no_plan)
     assert main(["risk", FLY, "--replicates", "10"]) == 3
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "no plan to replay" in err[0]

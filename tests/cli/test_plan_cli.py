@@ -10,6 +10,7 @@ from pathlib import Path
 import openpyxl
 import pytest
 
+import planner.optimise
 from planner.cli import plan_cmds
 from planner.cli.main import main
 from planner.cli.progress import parse_progress
@@ -27,7 +28,7 @@ def quick_start_lines():
 @pytest.fixture
 def solved(monkeypatch, fly_plan):
     """Reuse the session's solved demo plan instead of solving again."""
-    monkeypatch.setattr(plan_cmds, "plan_horizon", lambda scn, settings: fly_plan)
+    monkeypatch.setattr(planner.optimise, "plan_horizon", lambda scn, settings: fly_plan)
     return fly_plan
 
 
@@ -102,7 +103,7 @@ def test_no_plan_is_exit_3_and_writes_nothing(tmp_path, monkeypatch, fly_plan, c
     info = copy.copy(fly_plan.info)
     info.status, info.message = "no solution", "the solver stopped before finding any plan"
     broken.solution.info = info
-    monkeypatch.setattr(plan_cmds, "plan_horizon", lambda scn, settings: broken)
+    monkeypatch.setattr(planner.optimise, "plan_horizon", lambda scn, settings: broken)
     out = tmp_path / "p.xlsx"
     code = main(["plan", str(demo_scenario_path("fly")), "-o", str(out)])
     _, err = capsys.readouterr()

@@ -9,6 +9,7 @@ import numpy as np
 import openpyxl
 import pytest
 
+import planner.risk.margin
 from planner.cli import plan_cmds
 from planner.cli.main import main
 from planner.optimise import available_solvers
@@ -90,13 +91,13 @@ def test_plan_with_target_fill_plans_with_the_margin_found(six_weeks, tmp_path, 
                                                            capsys):
     target = 0.6
     found = {}
-    real = plan_cmds.safety_margin
+    real = planner.risk.margin.safety_margin
 
     def spy(*a, **k):
         found["res"] = real(*a, **k)
         return found["res"]
 
-    monkeypatch.setattr(plan_cmds, "safety_margin", spy)
+    monkeypatch.setattr(planner.risk.margin, "safety_margin", spy)
     code, text, err = _run(["plan", str(six_weeks), "--target-fill", str(target),
                             "--replicates", "1000", "--solver", FAST, "--quiet", "--json",
                             "-o", str(tmp_path / "p.xlsx")], capsys)

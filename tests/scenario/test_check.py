@@ -97,8 +97,8 @@ import datetime as dt  # noqa: E402
 
 from scipy.optimize import linprog  # noqa: E402
 
-from planner.optimise.capacity import max_volume_model  # noqa: E402
-from planner.optimise.checkcap import sustainable_volume  # noqa: E402
+from planner.answers.capacity import max_volume_model  # noqa: E402
+from planner.answers.checkcap import sustainable_volume  # noqa: E402
 from planner.optimise.solve import SolveSettings, available_solvers  # noqa: E402
 from planner.scenario.check import SUSTAIN_TOLERANCE, add_sustainable  # noqa: E402
 from planner.scenario.schema import Order  # noqa: E402

@@ -13,9 +13,12 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:  # pandas is loaded where a table is made: `check` does without it
+    import pandas as pd
 
 from planner.optimise.build import build_model
 from planner.optimise.data import compile_cycle
@@ -116,6 +119,8 @@ def capacity(scn: Scenario, settings: SolveSettings | None = None,
              cycle_days: int | None = None) -> CapacityResult:
     """Largest sustainable weekly volume, the volume at which each resource binds, and
     its shadow price [million/week per extra unit on every day]."""
+    import pandas as pd
+
     from planner.optimise import settings_for
     base = settings or settings_for(scn)
     s = dataclasses.replace(base.for_lp(), relative_gap=min(base.relative_gap, 1e-4))

@@ -29,17 +29,35 @@ import pandas as pd
 from planner.errors import InputError
 from planner.optimise.build import build_model
 from planner.optimise.data import compile_horizon
-from planner.optimise.results import PlanResult, read_back
+from planner.optimise.results import FILL_TOLERANCE, PlanResult, read_back
 from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
 from planner.scenario.schema import Order, Scenario
 
-__all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "TARGET_PRICE"]
+__all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "target_price"]
 
 TARGET_CUSTOMER = "growth target"
-#: Price of an unmet million of the target [currency]: above any option's cost (the
-#: booked orders, a priority class above, are priced above it in turn).
-TARGET_PRICE = 1e7
+#: The target's price is set so that leaving this many times the fill tolerance of the
+#: target unmet costs more than every option bought for the whole horizon [-].
+TARGET_PRICE_MARGIN = 2.0
+
+
+def target_price(scn: Scenario, data, extra: list[Order]) -> float:
+    """Price of an unmet million of the growth target [currency/million].
+
+    High enough that an option is bought whenever it delivers more than the fill
+    tolerance of the target (leaving ``FILL_TOLERANCE`` of the target's volume unmet
+    costs ``TARGET_PRICE_MARGIN`` times every option bought for every week of the
+    horizon), and never below the scenario's own shortfall price. Not higher: the
+    solver's relative gap is taken on the whole objective, so a price far above the
+    operating cost would make the gap say nothing about the cost. The booked orders,
+    a priority class above, are priced above it in turn.
+    """
+    volume = sum(o.weekly_volume * (o.last_week - o.first_week + 1) for o in extra)
+    weeks = data.n_days / 7.0
+    options = sum(o.weekly_cost * o.max_units * weeks for o in data.options)
+    need = TARGET_PRICE_MARGIN * options / (FILL_TOLERANCE * volume) if volume > 0 else 0.0
+    return max(scn.costs.shortfall_per_million, need)
 
 
 @dataclass
@@ -96,7 +114,7 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     from ``from_week`` (default: the first week the lead time allows) to the horizon's
     end and through the look-ahead."""
     from planner.optimise import settings_for
-    from planner.optimise.quote import default_start_week
+    from planner.answers.quote import default_start_week
     if not scn.expansion:
         raise InputError("the scenario lists no expansion options; add [[expansion]] entries",
                          place="expansion")
@@ -109,7 +127,8 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     extra = _top_up(scn, target, week, probe.n_weeks)
     data = compile_horizon(scn, start, extra_orders=extra, use_expansion=True)
     if TARGET_CUSTOMER in data.customers:
-        data.shortfall_price[data.customers.index(TARGET_CUSTOMER)] = TARGET_PRICE
+        data.shortfall_price[data.customers.index(TARGET_CUSTOMER)] = target_price(scn, data,
+                                                                                   extra)
     built = build_model(data)
     res = read_back(built, solve(built.model, settings))
     if not res.info.has_plan:

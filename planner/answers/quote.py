@@ -46,9 +46,10 @@ __all__ = ["QuoteResult", "quote", "default_start_week", "Budget"]
 #: Objective weight of one million a week of the asked volume [currency per million/week]
 #: (far above any cost, so costs only break ties).
 VOLUME_WEIGHT = 1e7
-#: Time of the largest-volume MILP and of the earliest-start MILP, at most [s]: near the
-#: edge of capacity a whole plan is found quickly but proving it the largest is slow; the
-#: answer then gives the volume found with the LP bound beside it.
+#: Time of the largest-volume MILP (or three times the base plan's, if longer: a slow
+#: machine gets more) and of the earliest-start MILP, at most [s]: near the edge of
+#: capacity a whole plan is found quickly but proving it the largest is slow; the answer
+#: then gives the volume found with the LP bound beside it.
 VOLUME_SECONDS = 8.0
 START_SECONDS = 6.0
 #: Time of the fill plan, at most [s] (or three times the base plan's, if longer): an
@@ -303,7 +304,7 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
                               Question(volume=(name, tuple(later)),
                                        volume_weight=VOLUME_WEIGHT, shortfall_cap=held),
                               horizon=horizon, what="largest constant weekly volume (one MILP)",
-                              seconds=VOLUME_SECONDS)
+                              seconds=max(VOLUME_SECONDS, 3.0 * base.info.seconds))
             if vol_plan.info.has_plan:
                 v = float(vol_plan.built.blocks["volume"].values(vol_plan.solution.x)[0])
                 res_kw["max_weekly_volume"] = v

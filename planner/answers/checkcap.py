@@ -1,5 +1,5 @@
 """The sustainable weekly volume for ``broodline check``: the standard week's max-volume
-programme (:func:`planner.optimise.capacity.max_volume_model`) solved as a linear
+programme (:func:`planner.answers.capacity.max_volume_model`) solved as a linear
 programme, cages and trays fractional.
 
 The LP relaxation bounds the integer answer of ``broodline capacity`` from above, so
@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import time
 
-from planner.optimise.capacity import max_volume_model
+from planner.answers.capacity import max_volume_model
 from planner.optimise.solve import SolveSettings, solve
 from planner.scenario.schema import Scenario
 
