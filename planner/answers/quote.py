@@ -46,10 +46,10 @@ __all__ = ["QuoteResult", "quote", "default_start_week", "Budget"]
 #: Objective weight of one million a week of the asked volume [currency per million/week]
 #: (far above any cost, so costs only break ties).
 VOLUME_WEIGHT = 1e7
-#: Time of the largest-volume MILP (or three times the base plan's, if longer: a slow
-#: machine gets more) and of the earliest-start MILP, at most [s]: near the edge of
-#: capacity a whole plan is found quickly but proving it the largest is slow; the answer
-#: then gives the volume found with the LP bound beside it.
+#: Time of the largest-volume MILP and of the earliest-start MILP, at most [s]: near the
+#: edge of capacity a whole plan is found quickly but proving it the largest is slow; the
+#: answer then gives the volume found with the LP bound beside it. (Scaling it with the
+#: base plan's time was tried: the 26-week quote beyond capacity took 30 s, not 17 s.)
 VOLUME_SECONDS = 8.0
 START_SECONDS = 6.0
 #: Time of the fill plan, at most [s] (or three times the base plan's, if longer): an
@@ -274,9 +274,15 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
     fill = a.plan([a.order(weekly_volume, first, last)], Question(shortfall_cap=held),
                   horizon=horizon, what="plan with the quote (booked orders first)",
                   seconds=max(FILL_SECONDS, 3.0 * base.info.seconds))
-    if not fill.info.has_plan:
+    fill_solved = fill.info.has_plan
+    if not fill_solved:
+        # no plan with the order within its time: nothing is promised, and the order is
+        # not called feasible (the base plan carries no quote to read fills from)
+        budget.say("note: no plan with the whole order within its time; searching what "
+                   "can be promised")
         fill = base
-    qweeks = a.quote_weeks(fill)
+    qweeks = a.quote_weeks(fill) if fill_solved else {
+        w: (weekly_volume, 0.0) for w in range(first, min(last, horizon) + 1)}
     short_weeks = _short_weeks(qweeks)
     res_kw: dict = {"full_from_week": None if short_weeks else first}
     promised_plan, promised = fill, weekly_volume
@@ -304,7 +310,7 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
                               Question(volume=(name, tuple(later)),
                                        volume_weight=VOLUME_WEIGHT, shortfall_cap=held),
                               horizon=horizon, what="largest constant weekly volume (one MILP)",
-                              seconds=max(VOLUME_SECONDS, 3.0 * base.info.seconds))
+                              seconds=VOLUME_SECONDS)
             if vol_plan.info.has_plan:
                 v = float(vol_plan.built.blocks["volume"].values(vol_plan.solution.x)[0])
                 res_kw["max_weekly_volume"] = v

@@ -227,3 +227,30 @@ def test_sweep_on_a_dask_cluster_gives_the_same_table(room_scenario, local_sweep
         else:
             assert list(a[c]) == list(b[c])
     assert not math.isnan(df["cost_per_million"].iloc[0])
+
+
+def test_a_fill_plan_not_found_in_time_is_never_a_yes(short_fly, monkeypatch):
+    """Seen on the demo: the plan with the order found no plan within its time, the
+    answer fell back to the book alone and said "feasible" with nothing delivered. A
+    quote whose fill plan is missing promises nothing (the stage is made to fail here)."""
+    import dataclasses
+
+    from planner.answers import quote as quote_module
+
+    real = quote_module._Asker.plan
+
+    def failing_fill(self, orders, question=None, relax=False, horizon=None, what="",
+                     seconds=None):
+        res = real(self, orders, question, relax, horizon, what, seconds)
+        if what.startswith("plan with the quote"):
+            info = dataclasses.replace(res.info, status="not solved", time_limited=True)
+            res = dataclasses.replace(res, solution=dataclasses.replace(res.solution,
+                                                                        info=info))
+        return res
+
+    monkeypatch.setattr(quote_module._Asker, "plan", failing_fill)
+    q = quote(short_fly, 0.5, 2, start_week=5, settings=settings_for(short_fly),
+              search=False)
+    s = q.summary()
+    assert not s["feasible"] and s["full_from_week"] is None
+    assert s["shortfall_million"] == pytest.approx(1.0)
