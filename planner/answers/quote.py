@@ -119,6 +119,7 @@ class QuoteResult:
     lead_time_limited: bool = False
     full_from_week: int | None = None
     partial_weeks: list[dict] = field(default_factory=list)
+    fill_plan_found: bool = True  #: a plan with the whole order was found in its time
     lead_time_weeks: list[int] = field(default_factory=list)
     base_short: bool = False
     solves: int = 0
@@ -141,6 +142,7 @@ class QuoteResult:
             "full_from_week": self.full_from_week,
             "full_from_date": self.week_date(self.full_from_week),
             "partial_weeks": self.partial_weeks,
+            "fill_plan_found": self.fill_plan_found,
             "lead_time_weeks": self.lead_time_weeks,
             "extra_cost_total": self.extra_cost_total,
             "extra_cost_per_week": self.extra_cost_per_week,
@@ -220,6 +222,21 @@ class _Asker:
         return {int(r.week): (float(r.ordered), float(r.released)) for r in w.itertuples()}
 
 
+def _partial(week: int, qweeks: dict, lifted_weeks: dict, lead_weeks: list[int],
+             fill_solved: bool) -> dict:
+    """One short week of the quote: its fill [-] and cause. A lead-time week's fill is the
+    one every capacity lifted allows; without a plan that carries the order, another
+    week's fill is not known (None), not 0."""
+    if week in lead_weeks:
+        asked, released = (qweeks if fill_solved else lifted_weeks)[week]
+        return {"week": week, "fill": released / asked, "cause": "lead time"}
+    if not fill_solved:
+        return {"week": week, "fill": None,
+                "cause": "no plan with the whole order was found in the time given"}
+    asked, released = qweeks[week]
+    return {"week": week, "fill": released / asked, "cause": "capacity"}
+
+
 def _short_weeks(weeks: dict[int, tuple[float, float]]) -> list[int]:
     return [w for w, (a, r) in sorted(weeks.items()) if r < a * (1 - FILL_TOLERANCE) - 1e-9]
 
@@ -293,18 +310,20 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
                                                            "pupal_holding", "labour")),
                         relax=True, horizon=horizon,
                         what="what the start state allows (every capacity lifted, LP)")
-        lead_weeks = _short_weeks(a.quote_weeks(lifted)) if lifted.info.has_plan else []
+        lifted_weeks = a.quote_weeks(lifted) if lifted.info.has_plan else {}
+        lead_weeks = _short_weeks(lifted_weeks)
         capacity_weeks = [w for w in short_weeks if w not in lead_weeks]
         later = [w for w in range(first, last + 1) if w not in lead_weeks]
         res_kw["lead_time_limited"] = not capacity_weeks
         res_kw["full_from_week"] = next(
             (w for w in range(first, last + 1) if all(x not in short_weeks
                                                        for x in range(w, last + 1))), None)
-        res_kw["partial_weeks"] = [{"week": w, "fill": qweeks[w][1] / qweeks[w][0],
-                                    "cause": "lead time" if w in lead_weeks else "capacity"}
+        res_kw["partial_weeks"] = [_partial(w, qweeks, lifted_weeks, lead_weeks, fill_solved)
                                    for w in short_weeks]
         res_kw["lead_time_weeks"] = lead_weeks
-        res_kw["limiting_resources"] = _limiting(fill, name, set(capacity_weeks))
+        # without a plan that carries the order there is nothing to read a cause from
+        res_kw["limiting_resources"] = (_limiting(fill, name, set(capacity_weeks))
+                                        if fill_solved else [])
         if capacity_weeks and search and later:
             vol_plan = a.plan([a.order(1.0, first, last)],
                               Question(volume=(name, tuple(later)),
@@ -340,7 +359,7 @@ def quote(scn: Scenario, weekly_volume: float, weeks: int, start_week: int | Non
         cost_uncertainty=noise, delivered=delivered,
         shortfall=float(sum(max(a_ - r, 0.0) for a_, r in qweeks.values())),
         ramp_up_start=ramp_date, first_changes=changes, promised_volume=promised,
-        base_short=base_short, **res_kw)
+        base_short=base_short, fill_plan_found=fill_solved, **res_kw)
     result.solves = budget.solves
     result.seconds = budget.elapsed()
     result.time_limited = a.hit

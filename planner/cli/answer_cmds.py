@@ -156,7 +156,8 @@ def quote_text(q, cur: str) -> str:
             lines.append(f"No: {num(q.weekly_volume)} million/week for {q.weeks} weeks from "
                          f"{start} cannot be taken in full.")
         for p in s["partial_weeks"]:
-            lines.append(f"  Week {p['week']}: {p['fill']:.1%} ({p['cause']}).")
+            fill = "fill not known" if p["fill"] is None else f"{p['fill']:.1%}"
+            lines.append(f"  Week {p['week']}: {fill} ({p['cause']}).")
         if s["max_weekly_volume"] is not None:
             bound = s.get("max_weekly_volume_bound")
             lines.append("  The largest constant volume that can be promised in the weeks "

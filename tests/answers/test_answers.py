@@ -254,3 +254,9 @@ def test_a_fill_plan_not_found_in_time_is_never_a_yes(short_fly, monkeypatch):
     s = q.summary()
     assert not s["feasible"] and s["full_from_week"] is None
     assert s["shortfall_million"] == pytest.approx(1.0)
+    # no cause is made up and no fill of 0 is claimed where none was measured
+    assert s["fill_plan_found"] is False and s["limiting_resources"] == []
+    for p in s["partial_weeks"]:
+        assert (p["fill"] is None) == (p["cause"] != "lead time")
+    from planner.cli.answer_cmds import quote_text
+    assert "fill not known" in quote_text(q, short_fly.costs.currency)
