@@ -200,7 +200,8 @@ def single_stage_harvest(table: LifeTable, harvest_age: float, discard_age: floa
         net_reproductive_rate=r0_delta, harvest_fraction=h, output_per_female=p,
         output_per_female_closed_form=closed, modified_survival=lstar,
         structure_age=age[: idl + 1].copy(),
-        structure_share=lstar[: idl + 1] / lstar[: idl + 1].sum(), age_unit=unit, female_fraction=table.female_fraction)
+        structure_share=lstar[: idl + 1] / lstar[: idl + 1].sum(), age_unit=unit,
+        female_fraction=table.female_fraction)
 
 
 def harvest_grid(table: LifeTable, emergence_age: float | None = None,

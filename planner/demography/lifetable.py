@@ -102,7 +102,8 @@ def intrinsic_rate(age, lx, mx) -> float:
     Solves ``sum_x exp(-r x) lx mx = 1`` (in the log form
     ``logsumexp(log(lx mx) - r x) = 0``, convex and decreasing in r) with Newton's method
     from the low end of the bracket ``[ln R0 / x_max, ln R0 / x_min]`` over the ages that
-    carry births, guarded by the bracket, to a relative step of 1e-14. ``r`` has the sign of ``R0 - 1``.
+    carry births, guarded by the bracket, to a relative step of 1e-14. ``r`` has the sign
+    of ``R0 - 1``.
 
     Raises
     ------
