@@ -12,7 +12,7 @@ from pathlib import Path
 from planner.errors import InputError
 
 __all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text", "save_workbook",
-           "input_file", "MAX_TEXT_BYTES", "MAX_WORKBOOK_BYTES", "short_name"]
+           "input_file", "output_file", "MAX_TEXT_BYTES", "MAX_WORKBOOK_BYTES", "short_name"]
 
 #: Largest text input (TOML, CSV) read [bytes]: far above any real scenario or table.
 MAX_TEXT_BYTES = 20_000_000
@@ -58,6 +58,31 @@ def input_file(path: str | Path, kind: str, max_bytes: int) -> Path:
     return path
 
 
+def output_file(target: str | Path, kind: str = "output") -> Path:
+    """Check, before any work, that ``target`` can be written: its folder exists and
+    takes a new file, and the name is not a folder. A run that would fail only at the
+    end (after a long solve) fails at once with one clear InputError instead."""
+    target = Path(target)
+    shown = short_name(target)
+    folder = target.parent if str(target.parent) else Path(".")
+    try:
+        if target.is_dir():
+            raise InputError(f"this is a folder; give a file name for the {kind}",
+                             source=shown)
+        if not folder.is_dir():
+            raise InputError(f"the folder for the {kind} does not exist", source=shown)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name[:100]}.", dir=folder)
+    except InputError:
+        raise
+    except OSError as exc:
+        raise InputError(f"the {kind} cannot be written here "
+                         f"({exc.strerror or type(exc).__name__}); choose another folder",
+                         source=shown) from None
+    os.close(fd)
+    os.unlink(tmp)
+    return target
+
+
 @contextmanager
 def atomic_path(target: str | Path, suffix: str | None = None):
     """Yield a temporary path in the target's folder; on success rename it over the target.
@@ -68,8 +93,13 @@ def atomic_path(target: str | Path, suffix: str | None = None):
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.exists():
         raise InputError("the folder for this output does not exist", source=str(target))
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=suffix or target.suffix,
-                               dir=folder)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name[:100]}.",
+                                   suffix=suffix or target.suffix, dir=folder)
+    except OSError as exc:
+        raise InputError(f"the output cannot be written here "
+                         f"({exc.strerror or type(exc).__name__})",
+                         source=short_name(target)) from None
     os.close(fd)
     tmp_path = Path(tmp)
     umask = os.umask(0)
@@ -77,7 +107,12 @@ def atomic_path(target: str | Path, suffix: str | None = None):
     os.chmod(tmp_path, 0o666 & ~umask)  # mkstemp makes 0600; give the usual mode
     try:
         yield tmp_path
-        os.replace(tmp_path, target)
+        try:
+            os.replace(tmp_path, target)
+        except OSError as exc:  # e.g. the target is a folder
+            raise InputError(f"the output cannot be written here "
+                             f"({exc.strerror or type(exc).__name__})",
+                             source=short_name(target)) from None
     except BaseException:
         tmp_path.unlink(missing_ok=True)
         raise

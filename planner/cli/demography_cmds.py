@@ -40,6 +40,10 @@ def register(sub) -> None:
                    help="length of one projection interval (default: day)")
     p.add_argument("--harvest-interval", type=_positive, default=1.0, metavar="TAU",
                    help="interval of the all-stage harvest [projection intervals] (default 1)")
+    p.add_argument("--fecundity", metavar="ENTRIES",
+                   help="which entries are new offspring: stage names (whole rows) or "
+                        "'to<-from' pairs, comma-separated (default: the file's "
+                        "'# fecundity:' line, else the first row)")
     p.add_argument("--json", action="store_true")
     p.set_defaults(handler=_cmd_matrix)
 
@@ -124,7 +128,7 @@ def _cmd_lifetable(args) -> int:
 # -- matrix ------------------------------------------------------------------------
 
 def _cmd_matrix(args) -> int:
-    m = read_stage_matrix(args.file, interval=args.interval_unit)
+    m = read_stage_matrix(args.file, interval=args.interval_unit, fecundity=args.fecundity)
     s = m.summary()
     s["all_stage_harvest"] = _all_stage(s["finite_rate"], args.harvest_interval)
     s["harvest_interval"] = args.harvest_interval
@@ -135,8 +139,9 @@ def _cmd_matrix(args) -> int:
     text = kv_table([
         ("dominant eigenvalue lambda", s["finite_rate"], f"per {u}"),
         ("intrinsic rate r = ln lambda", s["intrinsic_rate"], f"per {u}"),
-        ("net reproductive rate R0", s["net_reproductive_rate"], "offspring per individual"),
-        ("generation time ln R0 / ln lambda", s["generation_time"], u),
+        ("net reproductive rate R0", _or_unmarked(s["net_reproductive_rate"]),
+         "offspring per individual"),
+        ("generation time ln R0 / ln lambda", _or_unmarked(s["generation_time"]), u),
         ("damping ratio", s["damping_ratio"], "-"),
         (f"all-stage harvest every {num(args.harvest_interval)} {u}",
          s["all_stage_harvest"] if s["all_stage_harvest"] is not None else "none (no growth)",
@@ -146,8 +151,14 @@ def _cmd_matrix(args) -> int:
     rows = [(name, s["stable_distribution"][name], s["reproductive_values"][name])
             for name in m.stages]
     text += "\n\n" + table(rows, ["stage", "stable distribution [-]", "reproductive value [-]"])
+    if s["note"]:
+        text += "\n\nnote: " + s["note"]
     print(text)
     return 0
+
+
+def _or_unmarked(value):
+    return "- (see note)" if value is None else value
 
 
 # -- harvest -----------------------------------------------------------------------

@@ -12,6 +12,7 @@ from pathlib import Path
 from planner.cli.format import checked, dumps, kv_table, num, table
 from planner.cli.progress import Progress
 from planner.cautions import CAUTIONS
+from planner.errors import InputError
 from planner.risk import MAX_MARGIN
 from planner.scenario import demo_scenario_path, load_scenario
 
@@ -145,6 +146,8 @@ def fill_lines(risk, from_week: int, suggest: bool) -> list[str]:
     when the plan's first weeks ship pupae already in the trays (``from_week`` [week
     number] > 1), the same from ``from_week`` on; ``suggest`` adds the --target-fill hint."""
     a = risk.fill_summary(1)
+    if not (risk.ordered > 0).any():
+        return ["No week has an order, so there is no fill to replay."]
     line = (f"Chance of filling every week: {_pct(a['all_weeks'])} (worst week "
             f"{a['worst_week']}: {_pct(a['worst_week_probability'])}), from "
             f"{risk.replicates} replays of the colony model's spreads")
@@ -231,6 +234,9 @@ def _summary_text(res, outputs: dict, risk_text: list[str] | None = None) -> str
     if res.info.time_limited:
         head += "  [TIME-LIMITED: feasible, not proven cheapest]"
     out = [head, ""]
+    if not s["weeks"]:
+        out += ["The order book has no order in the plan's weeks: the plan shows what keeping "
+                "the colony costs, with nothing shipped.", ""]
     out.append(kv_table([
         ("status", s["status"], ""),
         ("solver", f"{s['solver']} ({s['message']})", ""),
@@ -325,10 +331,27 @@ def _plan_or_margin(scn, args, label: str):
     return run_plan(scn, args, label), None
 
 
+def _outputs_writable(workbook: Path, args) -> None:
+    """Refuse, before the solve, outputs that could not be written after it."""
+    from planner.fileio import output_file, short_name
+    if not workbook.is_dir() and workbook.suffix.lower() != ".xlsx":
+        raise InputError("the plan workbook must have a name ending in .xlsx",
+                         source=short_name(workbook))
+    output_file(workbook, "plan workbook")
+    if getattr(args, "csv", None):
+        folder = Path(args.csv)
+        if folder.exists() and not folder.is_dir():
+            raise InputError("--csv names a folder for the CSV tables; this is a file",
+                             source=str(folder))
+        output_file((folder if folder.is_dir() else folder.parent) / "daily.csv",
+                    "CSV tables")
+
+
 def _cmd_plan(args) -> int:
     path = Path(args.scenario)
     scn = load_scenario(path)
     out = Path(args.output) if args.output else path.with_name(f"{path.stem}-plan.xlsx")
+    _outputs_writable(out, args)
     res, margin = _plan_or_margin(scn, args,
                                   f"planning {path.name} ({args.solver or scn.plan.solver})")
     return _finish(res, args, out, path.name, margin)
@@ -336,5 +359,6 @@ def _cmd_plan(args) -> int:
 
 def _cmd_demo(args) -> int:
     scn = load_scenario(demo_scenario_path("fly"))
+    _outputs_writable(Path(args.output), args)
     res, margin = _plan_or_margin(scn, args, "planning the demo")
     return _finish(res, args, Path(args.output), "embedded demo (invented data)", margin)

@@ -128,10 +128,12 @@ class SingleStageHarvest:
         }
 
 
-def _h_from_r0(r0_theta, r0_delta):
-    """H = 1 - (1 - R0(theta)) / (R0(delta) - R0(theta)), elementwise."""
+def _kept_from_r0(r0_theta, r0_delta):
+    """1 - H = (1 - R0(theta)) / (R0(delta) - R0(theta)), elementwise: the share kept at
+    the harvest age. Computed as such, not as 1 - H, so that a very fertile colony
+    (R0 of 1e17 and more, where H rounds to 1) keeps a positive share."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return 1.0 - (1.0 - r0_theta) / (r0_delta - r0_theta)
+        return (1.0 - r0_theta) / (r0_delta - r0_theta)
 
 
 def single_stage_harvest(table: LifeTable, harvest_age: float, discard_age: float,
@@ -187,10 +189,16 @@ def single_stage_harvest(table: LifeTable, harvest_age: float, discard_age: floa
             f"the colony already replaces itself (R0 = {r0_theta:.4g}) before the harvest age "
             f"{harvest_age:g} {unit}: a harvest at that age cannot hold zero growth; harvest "
             "at an earlier, pre-reproductive age")
-    h = float(_h_from_r0(r0_theta, r0_delta))
-    lstar = np.where(np.arange(age.size) <= it, lx, (1.0 - h) * lx)
+    kept = float(_kept_from_r0(r0_theta, r0_delta))
+    h = 1.0 - kept
+    lstar = np.where(np.arange(age.size) <= it, lx, kept * lx)
     lstar[idl + 1:] = 0.0
     adults = float(lstar[ie: idl + 1].sum())
+    if not adults > 0.0:
+        raise DemographyError(
+            f"no adult female is alive between the emergence age {eps:g} {unit} and the "
+            f"discard age {discard_age:g} {unit} (lx is 0 there): the output per female is "
+            "not defined; give an emergence age at or before the first laying age")
     p = h * float(lx[it]) / adults
     closed = None
     if it < ie and r0_theta == 0.0:
@@ -236,14 +244,15 @@ def harvest_grid(table: LifeTable, emergence_age: float | None = None,
     r0c = np.cumsum(lx * table.mx)
     lc = np.concatenate([[0.0], np.cumsum(lx)])  # lc[k] = sum of lx[:k]
     T, D = np.meshgrid(ti, di, indexing="ij")
-    h = _h_from_r0(r0c[T], r0c[D])
+    kept = _kept_from_r0(r0c[T], r0c[D])
+    h = 1.0 - kept
     # sum_{x=eps}^{delta} l*_x = sum_{eps..min(theta,delta)} lx + (1-H) sum_{max(eps,theta+1)..delta} lx
     lo_end = np.minimum(T, D) + 1
     before = np.where(lo_end > ie, lc[np.maximum(lo_end, ie)] - lc[ie], 0.0)
     start = np.maximum(ie, T + 1)
     after = np.where(D + 1 > start, lc[D + 1] - lc[np.minimum(start, D + 1)], 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        p = h * lx[T] / (before + (1.0 - h) * after)
+        p = h * lx[T] / (before + kept * after)
     ok = (T < D) & (r0c[T] < 1.0) & (r0c[D] > 1.0) & (D >= ie)
     frame = pd.DataFrame({
         "harvest_age": age[T[ok]],

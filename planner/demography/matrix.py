@@ -200,16 +200,28 @@ class StageMatrix:
     def summary(self) -> dict:
         """Headline figures keyed as in the command line's JSON output."""
         lam, w, v, damping = self._perron()
+        note = None
+        try:
+            r0, gen = self.net_reproductive_rate, self.generation_time
+        except DemographyError as exc:
+            # lambda, w, v and the damping ratio do not depend on which entries are
+            # fecundity; R0 and T do, and need the fecundity entries marked
+            r0, gen = None, None
+            note = (f"{exc}. R0 and the generation time are left out; mark every entry "
+                    "that is new offspring with a '# fecundity: to<-from, ...' line in the "
+                    "file or --fecundity 'to<-from, ...' (e.g. 'seed<-flowering, "
+                    "rosette<-flowering')")
         return {
             "finite_rate": lam,
             "intrinsic_rate": math.log(lam) if lam > 0 else -math.inf,
             "stable_distribution": dict(zip(self.stages, w.tolist())),
             "reproductive_values": dict(zip(self.stages, v.tolist())),
-            "net_reproductive_rate": self.net_reproductive_rate,
-            "generation_time": self.generation_time,
+            "net_reproductive_rate": r0,
+            "generation_time": gen,
             "damping_ratio": damping,
             "fecundity_entries": self.fecundity_rule,
             "interval": self.interval,
+            "note": note,
         }
 
     def to_frame(self) -> pd.DataFrame:
@@ -217,6 +229,29 @@ class StageMatrix:
         import pandas as pd
 
         return pd.DataFrame(self.a, index=list(self.stages), columns=list(self.stages))
+
+
+def parse_fecundity(spec: str, stages: list[str], source: str | None = None) -> np.ndarray:
+    """The fecundity mask of a text such as ``"egg"`` (a whole row) or
+    ``"seed<-flowering, rosette<-flowering"`` (single entries, to<-from), items separated
+    by commas."""
+    mask = np.zeros((len(stages), len(stages)), bool)
+    items = [x.strip() for x in spec.split(",") if x.strip()]
+    if not items:
+        raise InputError("the fecundity entries name no stage; write e.g. 'egg' or "
+                         "'egg<-adult, larva<-adult'", source=source)
+    for item in items:
+        to, sep, frm = (x.strip() for x in item.partition("<-"))
+        for name in (to, frm) if sep else (to,):
+            if name not in stages:
+                raise InputError(f"the fecundity entries name an unknown stage; the "
+                                 f"stages are {', '.join(stages)}", source=source,
+                                 value=name)
+        if sep:
+            mask[stages.index(to), stages.index(frm)] = True
+        else:
+            mask[stages.index(to), :] = True
+    return mask
 
 
 def _fecundity_directive(comments: list[str], stages: list[str], source: str):
@@ -229,34 +264,22 @@ def _fecundity_directive(comments: list[str], stages: list[str], source: str):
         head, _, rest = text.partition(":")
         if head.strip().lower() != "fecundity":
             continue
-        mask = np.zeros((len(stages), len(stages)), bool)
-        items = [s.strip() for s in rest.split(",") if s.strip()]
-        if not items:
-            raise InputError("the '# fecundity:' line names no stage; write e.g. "
-                             "'# fecundity: egg' or '# fecundity: egg<-adult'", source=source)
-        for item in items:
-            to, sep, frm = (s.strip() for s in item.partition("<-"))
-            for name in (to, frm) if sep else (to,):
-                if name not in stages:
-                    raise InputError(f"the '# fecundity:' line names an unknown stage; the "
-                                     f"stages are {', '.join(stages)}", source=source,
-                                     value=name)
-            if sep:
-                mask[stages.index(to), stages.index(frm)] = True
-            else:
-                mask[stages.index(to), :] = True
+        mask = parse_fecundity(rest, stages, source)
+        items = [x.strip() for x in rest.split(",") if x.strip()]
         return mask, "as listed in the file: " + ", ".join(items)
     return None, "first row"
 
 
-def read_stage_matrix(path: str | Path, interval: str = "day") -> StageMatrix:
+def read_stage_matrix(path: str | Path, interval: str = "day",
+                      fecundity: str | None = None) -> StageMatrix:
     """Read a stage matrix CSV.
 
     The header row is ``stage,<name>,<name>,...``; each following row is
     ``<name>,<a_i1>,<a_i2>,...`` with column j = from stage j and row i = to stage i,
     rows in the same order as the columns. The first row holds the fecundity entries
     unless a comment line says otherwise: ``# fecundity: egg`` (whole rows) or
-    ``# fecundity: egg<-adult, larva<-adult`` (single entries).
+    ``# fecundity: egg<-adult, larva<-adult`` (single entries). ``fecundity``, in the
+    same form, overrides both.
     """
     table = read_csv_table(path, exact_first="stage")
     src = table.source
@@ -284,6 +307,10 @@ def read_stage_matrix(path: str | Path, interval: str = "day") -> StageMatrix:
             if a[i, j] < 0:
                 raise InputError("projection entries cannot be negative", source=src,
                                  place=f"row {line}, column '{raw_names[j]}'", value=a[i, j])
-    mask, rule = _fecundity_directive(table.comments, names, src)
+    if fecundity is not None:
+        mask = parse_fecundity(fecundity, names, "--fecundity")
+        rule = "as given on the command line: " + fecundity.strip()
+    else:
+        mask, rule = _fecundity_directive(table.comments, names, src)
     return StageMatrix(names, a, fecundity_mask=mask, interval=interval, source=src,
                        fecundity_rule=rule)

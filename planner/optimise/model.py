@@ -16,6 +16,7 @@ only letters, digits and underscores, and is unique by construction.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, field
 
@@ -46,6 +47,28 @@ def _part(x) -> str:
     if isinstance(x, (int, np.integer)):
         return f"m{-int(x)}" if x < 0 else str(int(x))
     return _SAFE.sub("x", str(x).replace("-", ""))
+
+
+#: Largest coefficient or right-hand side a row may carry [the family's unit]. Solvers
+#: treat numbers near 1e15-1e20 as infinite and lose every digit of a plan long before
+#: that; a facility's numbers in these units stay below a million.
+MAX_MAGNITUDE = 1e12
+
+
+def _check_magnitude(name, unit, resource, vals, b) -> None:
+    """Refuse rows no solver can read: numbers that are not finite or beyond
+    :data:`MAX_MAGNITUDE` come from an input far outside what a colony or facility has."""
+    from planner.errors import InputError
+    for what, arr in (("coefficient", vals), ("limit", b)):
+        if arr.size == 0:
+            continue
+        big = float(np.max(np.abs(arr))) if np.isfinite(arr).all() else math.inf
+        if big > MAX_MAGNITUDE:
+            raise InputError(
+                f"the {resource or name} rows of the plan reach a {what} of {big:.3g} "
+                f"{unit} (at most {MAX_MAGNITUDE:g}): a number in the colony model or the "
+                "scenario (fecundity mx, a capacity, an order volume) is far outside what a "
+                "facility has; check its unit", place=f"constraint family {name!r}")
 
 
 @dataclass
@@ -201,9 +224,11 @@ class LinearModel:
         cols = np.asarray(cols, np.int64)
         vals = np.asarray(vals, float)
         keep = vals != 0
+        b = np.asarray(b, float).reshape(len(labels))
+        _check_magnitude(name, unit, resource, vals[keep], b)
         A = sp.csr_matrix((vals[keep], (rows[keep], cols[keep])), shape=(len(labels), self.n))
         A.sum_duplicates()
-        fam = Family(name, list(labels), sense, A, np.asarray(b, float).reshape(len(labels)),
+        fam = Family(name, list(labels), sense, A, b,
                      unit, resource, description)
         self.families[name] = fam
         return fam

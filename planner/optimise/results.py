@@ -319,8 +319,11 @@ def _weekly(data, built, x) -> pd.DataFrame:
     df["shortfall"] = np.maximum(df["ordered"] - df["released"], 0.0)
     df.loc[df["shortfall"] < 1e-9, "shortfall"] = 0.0
     df = df[df["ordered"] > 1e-12]  # weeks a chosen start leaves out
-    return (df[~df["lookahead"]].drop(columns="lookahead").reset_index(drop=True),
-            df[df["lookahead"]].drop(columns="lookahead").reset_index(drop=True))
+    # bool, not object: an empty book gives an empty object column, which pandas would
+    # read as a list of column names
+    look = df["lookahead"].astype(bool).to_numpy()
+    df = df.drop(columns="lookahead")
+    return df[~look].reset_index(drop=True), df[look].reset_index(drop=True)
 
 
 def _cage_batches(data, cages, load_x, col_d) -> pd.DataFrame:

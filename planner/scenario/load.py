@@ -32,6 +32,10 @@ def read_toml(path: Path) -> dict:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=path.name) from None
+    except RecursionError:
+        raise InputError("not valid input: arrays or tables nested too deeply for the "
+                         "parser (no field of a scenario nests more than three levels)",
+                         source=path.name) from None
 
 
 def _model_of(annotation) -> tuple[str, type[BaseModel]] | None:

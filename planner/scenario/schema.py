@@ -16,11 +16,12 @@ Ages are whole days from egg laying (``x = 0``).
 from __future__ import annotations
 
 import datetime as dt
+import typing
 from functools import partial
 from typing import Annotated, Literal
 
 import numpy as np
-from pydantic import (BaseModel, BeforeValidator, ConfigDict, Field, field_validator,
+from pydantic import (AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, field_validator,
                       model_validator)
 
 from planner.scenario.units import parse_quantity
@@ -65,9 +66,67 @@ def N(unit: str, description: str, **constraints):
                            json_schema_extra={"unit": unit}, **constraints)]
 
 
+#: Largest order book and look-ahead a plan is built for: the model grows with both, and
+#: building it must stay within the time limit (104 plan weeks is the horizon's own cap).
+MAX_ORDERS = 200
+MAX_LOOKAHEAD_WEEKS = 26
+
+#: The dates a plan may use: a calendar day outside these years is a typing mistake
+#: (and dates near year 1 or 9999 overflow once the horizon is added).
+FIRST_YEAR, LAST_YEAR = 1900, 2200
+
+
+def _plain_date(value):
+    """A date field takes a TOML date or an ISO text, never a number or true/false
+    (pydantic would read 0 as 1970-01-01)."""
+    if isinstance(value, (bool, int, float)):
+        raise ValueError(f"a date is needed (e.g. 2027-03-01), not {value!r}")
+    return value
+
+
+def _date_range(value: dt.date) -> dt.date:
+    if not FIRST_YEAR <= value.year <= LAST_YEAR:
+        raise ValueError(f"the date {value} is outside the years {FIRST_YEAR}-{LAST_YEAR} "
+                         f"a plan can use")
+    return value
+
+
+#: A calendar date in the years a plan can use.
+Date = Annotated[dt.date, BeforeValidator(_plain_date), AfterValidator(_date_range)]
+
+
+def _takes_bool(annotation) -> bool:
+    """Whether a field's annotation admits true/false."""
+    if annotation is bool:
+        return True
+    return any(_takes_bool(a) for a in typing.get_args(annotation))
+
+
 class _Model(BaseModel):
     model_config = ConfigDict(extra="forbid", validate_assignment=False,
-                              populate_by_name=True, str_strip_whitespace=True)
+                              populate_by_name=True, str_strip_whitespace=True,
+                              allow_inf_nan=False)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_bool_numbers(cls, value):
+        """true/false only where a field is a switch: pydantic would read true as 1 in a
+        number, a week or a weekday table."""
+        if not isinstance(value, dict):
+            return value
+        for key, v in value.items():
+            field = cls.model_fields.get(key)
+            if field is None:
+                for f in cls.model_fields.values():
+                    if f.alias == key:
+                        field = f
+                        break
+            if field is None or _takes_bool(field.annotation):
+                continue
+            items = v if isinstance(v, list) else [v]
+            if any(isinstance(x, bool) for x in items):
+                raise ValueError(f"{key}: a number or text is needed here, not true/false")
+        return value
 
 
 def weekday_key(name: str) -> str:
@@ -380,11 +439,11 @@ class Costs(_Model):
 class Calendar(_Model):
     """Plan start, shipping days and holidays."""
 
-    start: dt.date = Field(description="first day of the plan (a Monday keeps plan weeks "
+    start: Date = Field(description="first day of the plan (a Monday keeps plan weeks "
                                        "aligned with calendar weeks)")
     shipping_days: list[str] = Field(min_length=1, description="weekdays on which pupae "
                                                                "ship (Mon ... Sun)")
-    holidays: list[dt.date] = Field(default_factory=list, description="dates with holiday "
+    holidays: list[Date] = Field(default_factory=list, description="dates with holiday "
                                                                       "crew hours and kitchen")
     ship_on_holidays: bool = Field(False, description="whether pupae may ship on holidays")
 
@@ -397,7 +456,7 @@ class Calendar(_Model):
         return [d for d in WEEKDAYS if d in keys]
 
 
-WeekRef = int | dt.date
+WeekRef = int | Date
 
 
 class Order(_Model):
@@ -427,7 +486,7 @@ class Order(_Model):
 class StartCages(_Model):
     """Cages already loaded on the plan's first day."""
 
-    load_date: dt.date
+    load_date: Date
     count: N("cages", "cages in the batch", gt=0)
     discard_age: N("day", "age at whose end the batch is emptied", gt=0)
     room: str | None = Field(None, description="adult room (default: any)")
@@ -436,7 +495,7 @@ class StartCages(_Model):
 class StartTrays(_Model):
     """Larval trays already seeded on the plan's first day."""
 
-    seed_date: dt.date
+    seed_date: Date
     count: N("trays", "trays in the batch", gt=0)
 
 
@@ -471,7 +530,7 @@ class ExpansionOption(_Model):
                                                                 "[h/day], by weekday or every day")
     crew: str | None = Field(None, description="crew that gets the hours (default: the first)")
     weekly_cost: Q("currency/week", "cost per unit per week once ready", ge=0)
-    ready: dt.date = Field(description="first day the addition can be used")
+    ready: Date = Field(description="first day the addition can be used")
     max_units: N("units", "how many may be bought", ge=1) = 1
 
     @model_validator(mode="after")
@@ -492,10 +551,23 @@ class PlanSettings(_Model):
                     lt=1) = 0.005
     lookahead_weeks: N("weeks", "weeks after the horizon whose orders the colony must still "
                                 "be able to serve (default: from the egg-to-harvest lead time)",
-                       ge=0) | None = None
+                       ge=0, le=MAX_LOOKAHEAD_WEEKS) | None = None
     cycle_days: Literal[7, 14] = Field(7, description="length of the standard week [day]")
     single_discard_age: bool = Field(False, description="one discard age for all cages")
     single_harvest_age: bool = Field(False, description="one harvest age for all batches")
+
+
+def _duplicate_names(where: str, names: list[str]) -> list[str]:
+    """One message per name used twice in a list of named blocks."""
+    out, first = [], {}
+    for i, n in enumerate(names):
+        if n in first and first[n] is not None:
+            out.append(f"{where}[{i + 1}].name: {n!r} is also the name of "
+                       f"{where}[{first[n] + 1}]; give each its own name")
+            first[n] = None  # one line per repeated name
+        elif n not in first:
+            first[n] = i
+    return out
 
 
 class Scenario(_Model):
@@ -510,7 +582,8 @@ class Scenario(_Model):
     labour: LabourStandards = Field(default_factory=LabourStandards)
     costs: Costs = Field(default_factory=Costs)
     calendar: Calendar
-    orders: list[Order] = Field(default_factory=list)
+    orders: list[Order] = Field(default_factory=list, max_length=MAX_ORDERS,
+                                description=f"the order book (at most {MAX_ORDERS} orders)")
     start: StartState
     expansion: list[ExpansionOption] = Field(default_factory=list)
     plan: PlanSettings = Field(default_factory=PlanSettings)
@@ -518,11 +591,16 @@ class Scenario(_Model):
     @model_validator(mode="after")
     def _cross_checks(self):
         errs = []
-        names = [c.name for c in self.crews]
-        if len(set(names)) != len(names):
-            errs.append("crews: two crews have the same name")
+        for where, items in (("crews", self.crews), ("facility.adult_rooms",
+                             self.facility.adult_rooms), ("facility.larval_rooms",
+                             self.facility.larval_rooms), ("expansion", self.expansion)):
+            errs += _duplicate_names(where, [x.name for x in items])
         owner: dict[str, str] = {}
+        seen: set[str] = set()
         for c in self.crews:
+            if c.name in seen:
+                continue  # a repeated crew is one mistake, reported above
+            seen.add(c.name)
             for t in (TASKS if c.tasks == "all" else c.tasks):
                 if t in owner:
                     errs.append(f"crews: task {t!r} is done by both {owner[t]!r} and {c.name!r}; "
@@ -562,7 +640,7 @@ class Scenario(_Model):
                 errs.append(f"orders[{i + 1}] ({o.customer}): first_week {o.first_week} is "
                             "before the plan starts")
         for i, e in enumerate(self.expansion):
-            if e.crew is not None and e.crew not in names:
+            if e.crew is not None and e.crew not in seen:
                 errs.append(f"expansion[{i + 1}].crew: no crew is called {e.crew!r}")
         if errs:
             raise ValueError("\n".join(errs))

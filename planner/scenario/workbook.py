@@ -218,6 +218,8 @@ def _classify(info: FieldInfo) -> tuple[str, tuple, object]:
         return ("weekly" if issubclass(models[0], Weekly) else "model"), (), models[0]
     if lists:
         inner = typing.get_args(lists[0])[0]
+        if typing.get_origin(inner) is typing.Annotated:  # e.g. a bounded Date
+            inner = typing.get_args(inner)[0]
         if _is_model(inner):
             return "models", (), inner
         if literals:
@@ -678,8 +680,15 @@ def _build(scenario: Scenario, intro: list[str]):
 
 
 def _check_target(path: Path) -> None:
+    """An output workbook's name ends in .xlsx and its place takes a new file."""
+    from planner.fileio import output_file, short_name
+    if path.is_dir():
+        raise InputError("this is a folder; give a file name ending in .xlsx for the "
+                         "workbook to write", source=short_name(path))
     if path.suffix.lower() != ".xlsx":
-        raise InputError("an input workbook must be an .xlsx file", source=str(path))
+        raise InputError("the workbook to write must have a name ending in .xlsx "
+                         "(e.g. broodline-input.xlsx)", source=short_name(path))
+    output_file(path, "workbook")
 
 
 _DEFAULT_INTRO = ["A Broodline planning scenario. One sheet per section of the scenario; "

@@ -160,3 +160,46 @@ def test_plan_says_its_chance_of_filling_every_week(tmp_path, solved, capsys):
     assert int(line.group(2)) == f["worst_week"]
     assert float(line.group(3)) == pytest.approx(100 * f["worst_week_probability"], abs=0.05)
     assert "[variation] spreads" in out and "licensed staff" in out
+
+
+@pytest.mark.parametrize("where", ["missing-folder/plan.xlsx", "a-folder", "/proc/plan.xlsx"])
+def test_an_output_that_cannot_be_written_fails_before_the_solve(tmp_path, monkeypatch,
+                                                                 capsys, where):
+    """Issue 12 item 10: a plan workbook that cannot be written used to fail with
+    'internal error: PermissionError' after the whole solve; now exit 2 at once, one
+    line, and the solver is never called. (/proc refuses new files even to root, so the
+    case does not depend on who runs the tests.)"""
+    def no_solve(*a, **k):
+        raise AssertionError("the solve ran before the output was checked")
+
+    monkeypatch.setattr(planner.optimise, "plan_horizon", no_solve)
+    (tmp_path / "a-folder").mkdir()
+    target = where if where.startswith("/") else str(tmp_path / where)
+    rc = main(["plan", str(demo_scenario_path("fly")), "-o", target])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert rc == 2
+    assert len(err) == 1 and err[0].startswith("error:") and "internal" not in err[0], err
+
+
+def test_an_empty_order_book_is_planned_not_a_crash(tmp_path, capsys):
+    """Issue 12 item 7: a scenario without orders passed `check` and crashed `plan` after
+    the solve (KeyError 'lookahead': pandas read an empty object column as column names).
+    An empty book is a valid question: what does keeping the colony cost?"""
+    import re as _re
+    import shutil
+    models = ROOT / "models"
+    for name in ("fernhollow-fly.toml", "fernhollow-fly-lifetable.csv"):
+        shutil.copy(models / name, tmp_path / name)
+    text = demo_scenario_path("fly").read_text().replace("../fernhollow-fly.toml",
+                                                        "fernhollow-fly.toml")
+    text = _re.sub(r"\[\[orders\]\].*?(?=\n\[(?!\[orders))", "", text, flags=_re.S)
+    assert "[[orders]]" not in text and "horizon_weeks = 26" in text
+    text = text.replace("horizon_weeks = 26", "horizon_weeks = 6")
+    f = tmp_path / "empty.toml"
+    f.write_text(text)
+    rc = main(["plan", str(f), "--time-limit", "20", "--json",
+               "-o", str(tmp_path / "plan.xlsx")])
+    out = json.loads(capsys.readouterr().out)
+    assert rc == 0
+    assert out["ordered_million"] == 0 and out["weeks"] == []
+    assert (tmp_path / "plan.xlsx").exists()

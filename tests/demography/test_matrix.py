@@ -1,6 +1,8 @@
 """Stage-classified matrices against a published matrix and against numpy."""
 
+import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -108,3 +110,50 @@ def test_immortal_transitions_give_clear_error():
     m = StageMatrix(["a", "b"], [[0, 2], [0.5, 1.0]])
     with pytest.raises(DemographyError, match="lives for ever"):
         _ = m.net_reproductive_rate
+
+
+TEASEL = Path(__file__).resolve().parents[1] / "data" / "teasel-stage-matrix.csv"
+TEASEL_FECUNDITY = "seed1<-flowering, small<-flowering, medium<-flowering, large<-flowering"
+
+
+def test_caswell2001_teasel_offspring_in_several_stages_is_not_refused():
+    """Issue 12 item 15. Teasel, Caswell (2001) Matrix Population Models, 2nd ed. (after
+    Werner & Caswell 1977), entries typed from memory: flowering plants make seeds and
+    rosettes. With the default rule (first row = fecundity) the transitions loop through
+    flowering, so R0 is undefined; lambda, w, v and the damping ratio do not depend on
+    the marks and are reported (checked against numpy's eigen-solver), R0 and T are
+    null with a note on how to mark the entries. Caswell gives lambda = 2.3227 (typed
+    from memory; checked to 0.01)."""
+    m = read_stage_matrix(TEASEL)
+    s = m.summary()
+    vals, vecs = np.linalg.eig(m.a)
+    k = int(np.argmax(vals.real))
+    assert s["finite_rate"] == pytest.approx(vals[k].real, rel=1e-10)
+    assert s["finite_rate"] == pytest.approx(2.3227, abs=0.01)
+    w = np.abs(vecs[:, k].real) / np.abs(vecs[:, k].real).sum()
+    assert list(s["stable_distribution"].values()) == pytest.approx(w, rel=1e-8)
+    second = np.sort(np.abs(vals))[-2]
+    assert s["damping_ratio"] == pytest.approx(vals[k].real / second, rel=1e-8)
+    assert s["net_reproductive_rate"] is None and s["generation_time"] is None
+    assert "# fecundity:" in s["note"] and "--fecundity" in s["note"]
+
+    marked = read_stage_matrix(TEASEL, fecundity=TEASEL_FECUNDITY).summary()
+    assert marked["finite_rate"] == pytest.approx(s["finite_rate"], rel=1e-12)
+    # R0 > 1 exactly when lambda > 1 (Cushing & Zhou 1994), and T = ln R0 / ln lambda
+    r0 = marked["net_reproductive_rate"]
+    assert r0 > 1 and marked["note"] is None
+    assert marked["generation_time"] == pytest.approx(math.log(r0) / math.log(2.3227),
+                                                      rel=0.01)
+
+
+def test_matrix_cli_fecundity_option(capsys):
+    from planner.cli.main import main
+    assert main(["matrix", str(TEASEL), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["net_reproductive_rate"] is None and out["note"]
+    assert main(["matrix", str(TEASEL), "--json", "--fecundity", TEASEL_FECUNDITY]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["net_reproductive_rate"] > 1
+    assert main(["matrix", str(TEASEL), "--fecundity", "seed9<-flowering"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "unknown stage" in err[0]

@@ -1,6 +1,5 @@
 """Scenario and colony-model files: round trips and every error case, one line each."""
 
-import shutil
 import tomllib
 from pathlib import Path
 
@@ -13,17 +12,6 @@ from planner.scenario.schema import ColonyModel, Scenario
 from planner.scenario.units import parse_quantity
 
 MODELS = Path(__file__).resolve().parents[2] / "models"
-
-
-@pytest.fixture
-def demo_dir(tmp_path):
-    """A copy of the demo scenario with its colony model beside it."""
-    for name in ("fernhollow-fly.toml", "fernhollow-fly-lifetable.csv"):
-        shutil.copy(MODELS / name, tmp_path / name)
-    text = demo_scenario_path("fly").read_text().replace("../fernhollow-fly.toml",
-                                                        "fernhollow-fly.toml")
-    (tmp_path / "scenario.toml").write_text(text)
-    return tmp_path
 
 
 def load_variant(demo_dir, old, new, count=1):
