@@ -8,6 +8,7 @@ print one line each on stderr and exit with code 2, never with a traceback.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
 import sys
 import traceback
@@ -52,8 +53,27 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _Terminated(BaseException):
+    """SIGTERM, raised in the main thread so that solver children are killed and
+    temporary folders and half-written outputs are removed on the way out."""
+
+
+def _on_term(signum, frame):
+    raise _Terminated()
+
+
+def _terminate_as_interrupt() -> None:
+    import signal
+    import threading
+    if threading.current_thread() is threading.main_thread():
+        with contextlib.suppress(ValueError, OSError):
+            signal.signal(signal.SIGTERM, _on_term)
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns (and, as a console script, exits with) the code."""
+    if argv is None:  # the console script: SIGTERM cleans up like Ctrl-C
+        _terminate_as_interrupt()
     argv = sys.argv[1:] if argv is None else argv
     try:
         parser = build_parser()
@@ -69,6 +89,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except _Terminated:
+        print("terminated", file=sys.stderr)
+        return 143
     except SystemExit as exc:  # --help and --version
         return int(exc.code or 0) if isinstance(exc.code, int) else 0
     except BrokenPipeError:

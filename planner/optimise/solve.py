@@ -28,6 +28,7 @@ import numpy as np
 import pulp
 
 from planner.errors import SolverError
+from planner.optimise.children import guard_children, solve_folder
 from planner.optimise.model import LinearModel, solver_name
 
 pulp.set_v4_migration_warnings(False)
@@ -438,7 +439,7 @@ class _Runner:
         solver = _make_solver(run, self.tmp, log, warm=warm, start=start, target=target)
         t0 = time.perf_counter()
         try:
-            with _quiet():
+            with guard_children(), _quiet():
                 self.prob.solve(solver)
         except pulp.PulpSolverError as exc:
             raise SolverError(f"the {s.solver} solver failed: {exc}") from None
@@ -508,7 +509,7 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
     start = np.asarray(initial, float) if initial is not None and settings.solver == "cbc" \
         else None
     warm = _set_start(variables, start)
-    with tempfile.TemporaryDirectory(prefix="broodline-solve-") as tmp:
+    with solve_folder() as tmp:
         log = settings.log_path or os.path.join(tmp, "solver.log")
         runner = _Runner(prob, variables, model, settings, tmp, log)
         if not two:
@@ -909,7 +910,7 @@ def _relaxed_duals(model, settings, tmp) -> dict[str, np.ndarray]:
     prob, _, rows = to_pulp(model, relax=True)
     lp_settings = settings.for_lp()
     try:
-        with _quiet():
+        with guard_children(), _quiet():
             prob.solve(_make_solver(lp_settings, tmp, None, lp_only=True))
     except pulp.PulpSolverError:
         return {}
@@ -931,7 +932,7 @@ def _fixed_integer_duals(model, prob, variables, rows, x, settings, tmp):
     lp_settings = settings.for_lp()
     solver = _make_solver(lp_settings, tmp, None, lp_only=True)
     try:
-        with _quiet():
+        with guard_children(), _quiet():
             prob.solve(solver)
         ok = pulp.LpStatus[prob.status] == "Optimal"
     except pulp.PulpSolverError:

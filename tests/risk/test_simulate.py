@@ -118,3 +118,23 @@ def test_the_found_margin_holds_on_a_fresh_seed(eight_weeks):
     # selection of the worst of four weeks
     se = np.sqrt(target * (1 - target) * (1 / 1000 + 1 / 4000))
     assert fresh.worst_fill(res.from_week) >= target - 3 * se - 0.02
+
+
+def test_a_replay_too_large_for_memory_is_refused_before_any_work(fly_plan):
+    """Issue 12 item 11: `risk --replicates 10000000` grew 40 MB/s to 8 GB before printing
+    anything. The count is refused at once with the limit and the largest count allowed;
+    tracemalloc shows that nothing of that size was allocated."""
+    import time
+    import tracemalloc
+
+    from planner.risk.simulate import MAX_REPLAY_BYTES
+    tracemalloc.start()
+    t0 = time.perf_counter()
+    with pytest.raises(InputError, match="use at most") as info:
+        replay(fly_plan, replicates=10_000_000, seed=1)
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    assert time.perf_counter() - t0 < 5.0
+    assert peak < MAX_REPLAY_BYTES / 20
+    most = int(str(info.value).split("use at most ")[1].split(" ")[0].replace(",", ""))
+    assert most >= 2000  # the default count stays far inside the limit
