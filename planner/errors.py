@@ -25,10 +25,16 @@ __all__ = [
 ]
 
 
+#: Longest value shown in a message [characters]; longer ones are shortened in the middle.
+MAX_VALUE_CHARS = 120
+
+
 def _fmt_value(value: object) -> str:
-    if isinstance(value, str):
-        return repr(value)
-    return str(value)
+    text = repr(value) if isinstance(value, str) else str(value)
+    if len(text) > MAX_VALUE_CHARS:
+        keep = (MAX_VALUE_CHARS - 5) // 2
+        text = f"{text[:keep]} ... {text[-keep:]} ({len(text)} characters)"
+    return text
 
 
 class BroodlineError(Exception):

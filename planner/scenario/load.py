@@ -226,16 +226,29 @@ def _read_life_table_file(path: Path) -> dict:
     return {"age": age, "lx": lx, "mx": mx}
 
 
+def _found(target: Path, source: str, place: str, value: str, what: str,
+           relative_to: str) -> None:
+    """Refuse a referenced file that is missing or whose name the system refuses; the
+    message shows long names shortened."""
+    from planner.fileio import short_name
+    try:
+        ok = target.exists()
+    except OSError as exc:  # e.g. the name is too long
+        raise InputError(f"the {what} cannot be opened ({exc.strerror or type(exc).__name__})",
+                         source=source, place=place, value=value) from None
+    if not ok:
+        raise InputError(f"the {what} {short_name(value)!r} was not found (looked in "
+                         f"{short_name(target.parent)}); paths are relative to the "
+                         f"{relative_to}", source=source, place=place, value=value)
+
+
 def colony_raw_from_file(path: Path) -> dict:
     """A colony model file's content with its life table file read in."""
     raw = read_toml(path)
     lt = raw.get("life_table")
     if isinstance(lt, str):
         target = (path.parent / lt)
-        if not target.exists():
-            raise InputError(f"the life table file {lt!r} was not found (looked in "
-                             f"{target.parent}); paths are relative to the colony model file",
-                             source=path.name, place="life_table", value=lt)
+        _found(target, path.name, "life_table", lt, "life table file", "colony model file")
         raw["life_table"] = _read_life_table_file(target)
     return raw
 
@@ -255,17 +268,12 @@ def scenario_raw_from_toml(path: Path) -> dict:
     colony = raw.get("colony")
     if isinstance(colony, str):
         target = path.parent / colony
-        if not target.exists():
-            raise InputError(f"the colony model {colony!r} was not found (looked in "
-                             f"{target.parent}); paths are relative to the scenario file",
-                             source=path.name, place="colony", value=colony)
+        _found(target, path.name, "colony", colony, "colony model", "scenario file")
         raw["colony"] = colony_raw_from_file(target)
     elif isinstance(colony, dict) and isinstance(colony.get("life_table"), str):
         target = path.parent / colony["life_table"]
-        if not target.exists():
-            raise InputError(f"the life table file {colony['life_table']!r} was not found "
-                             f"(looked in {target.parent})", source=path.name,
-                             place="colony.life_table", value=colony["life_table"])
+        _found(target, path.name, "colony.life_table", colony["life_table"],
+               "life table file", "scenario file")
         colony["life_table"] = _read_life_table_file(target)
     return raw
 

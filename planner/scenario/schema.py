@@ -292,25 +292,31 @@ class ColonyModel(_Model):
         if re_.seed_lag >= st.larval_collection_age:
             errs.append(f"rearing.seed_lag = {re_.seed_lag}: eggs must be seeded before the "
                         f"larval collection age ({st.larval_collection_age}) [day]")
-        for a in re_.harvest_ages:
-            if a <= st.larval_collection_age:
-                errs.append(f"rearing.harvest_ages: {a} is not after larval collection "
-                            f"({st.larval_collection_age} day): there are no pupae yet")
-            if a > min(re_.discard_ages):
-                errs.append(f"rearing.harvest_ages: harvest age {a} is after the discard age "
+        # one line per cause, listing every age it concerns
+        ages = lambda xs: ", ".join(str(a) for a in xs)  # noqa: E731
+        early = [a for a in re_.harvest_ages if a <= st.larval_collection_age]
+        if early:
+            errs.append(f"rearing.harvest_ages: {ages(early)} not after larval collection "
+                        f"({st.larval_collection_age} day): there are no pupae yet")
+        before_load = [a for a in re_.discard_ages if a <= re_.cage_loading_age]
+        if before_load:
+            errs.append(f"rearing.discard_ages: {ages(before_load)} not after the cage "
+                        f"loading age ({re_.cage_loading_age} day)")
+        elif re_.discard_ages:
+            late = [a for a in re_.harvest_ages if a > min(re_.discard_ages)]
+            if late:
+                what = f"harvest age {late[0]} is" if len(late) == 1 else \
+                    f"harvest ages {ages(late)} are"
+                errs.append(f"rearing.harvest_ages: {what} after the discard age "
                             f"{min(re_.discard_ages)} [day]: harvest before cages are emptied")
-        for a in re_.discard_ages:
-            if a <= re_.cage_loading_age:
-                errs.append(f"rearing.discard_ages: {a} is not after the cage loading age "
-                            f"({re_.cage_loading_age} day)")
-        for name, ages in (("harvest_ages", re_.harvest_ages), ("discard_ages", re_.discard_ages)):
-            for a in ages:
-                if a > last:
-                    errs.append(f"rearing.{name}: age {a} is beyond the life table, which ends "
-                                f"at day {last}")
-        if st.emergence_age > last:
-            errs.append(f"stages.emergence_age = {st.emergence_age} is beyond the life table "
-                        f"(last age {last})")
+        beyond = [f"{name} {ages(xs)}" for name, xs in (
+            ("harvest_ages", [a for a in re_.harvest_ages if a > last]),
+            ("discard_ages", [a for a in re_.discard_ages if a > last]),
+            ("emergence_age", [st.emergence_age] if st.emergence_age > last else []))
+            if xs]
+        if beyond:
+            errs.append(f"rearing: ages beyond the life table, which ends at day {last}: "
+                        + "; ".join(beyond) + " (a longer life table, or earlier ages)")
         if errs:
             raise ValueError("\n".join(errs))
         return self

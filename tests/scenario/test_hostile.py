@@ -152,3 +152,51 @@ def test_template_names_the_output_problem(target, words, capsys):
     rc = main(["template", target])
     err = capsys.readouterr().err.strip().splitlines()
     assert rc == 2 and len(err) == 1 and words in err[0], err
+
+
+def test_one_wrong_age_list_is_one_line(demo_dir):
+    """Item 14: `discard_ages = [10]` gave five lines (one per harvest age, and one for
+    the discard age itself); the cause is the discard age, and it is one line."""
+    f = demo_dir / "fernhollow-fly.toml"
+    text = f.read_text()
+    assert "discard_ages = [50, 57, 64, 71]" in text
+    f.write_text(text.replace("discard_ages = [50, 57, 64, 71]", "discard_ages = [10]"))
+    with pytest.raises((InputError, InputErrors)) as info:
+        load_scenario(demo_dir / "scenario.toml")
+    lines = info.value.lines()
+    assert len(lines) == 1 and "discard_ages" in lines[0], lines
+
+
+def test_a_short_life_table_is_one_line(demo_dir):
+    """Item 14: a 30-row life table gave one line per discard age beyond it."""
+    f = demo_dir / "fernhollow-fly-lifetable.csv"
+    rows = f.read_text().splitlines()
+    keep = [r for r in rows if r.startswith("#") or r.startswith("age")]
+    body = [r for r in rows if r not in keep][:30]
+    f.write_text("\n".join(keep + body) + "\n")
+    with pytest.raises((InputError, InputErrors)) as info:
+        load_scenario(demo_dir / "scenario.toml")
+    lines = info.value.lines()
+    assert len(lines) == 1 and "beyond the life table" in lines[0], lines
+
+
+@pytest.mark.parametrize("key", ["life_table", "colony"])
+def test_a_name_too_long_for_the_system_is_one_short_line(demo_dir, key):
+    """Item 2: a 100 kB file name gave 'internal error: OSError: File name too long' and
+    repeated the whole name; now one line of bounded length."""
+    name = "x" * 100_000 + ".csv"
+    if key == "life_table":
+        f = demo_dir / "fernhollow-fly.toml"
+        old = 'life_table = "fernhollow-fly-lifetable.csv"'
+        new = f'life_table = "{name}"'
+    else:
+        f = demo_dir / "scenario.toml"
+        old = 'colony = "fernhollow-fly.toml"'
+        new = f'colony = "{name}"'
+    text = f.read_text()
+    assert old in text, old
+    f.write_text(text.replace(old, new))
+    with pytest.raises(InputError) as info:
+        load_scenario(demo_dir / "scenario.toml")
+    line = str(info.value)
+    assert "cannot be opened" in line and len(line) < 600, line[:300]
