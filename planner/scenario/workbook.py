@@ -1087,16 +1087,54 @@ def _parse_path(text: str) -> tuple:
 _TEXT = Slot(path=(), kind="text", unit="text", description="", required=False)
 
 
-def _open(path: Path):
-    from openpyxl import load_workbook
-    if not path.exists():
-        raise InputError("file not found", source=str(path))
+#: Largest unpacked content of an input workbook [bytes]: the template unpacks to about
+#: 0.1 MB; a sheet of a million rows zipped to 4 MB unpacks to far more than this.
+MAX_UNZIPPED_BYTES = 30_000_000
+
+
+def _check_zip(path: Path) -> None:
+    """Refuse, from the zip directory alone (no sheet is parsed), a workbook whose parts
+    unpack to more than :data:`MAX_UNZIPPED_BYTES`."""
+    import zipfile
+    from planner.fileio import short_name
     try:
-        return load_workbook(path, data_only=True)
-    except Exception as exc:  # noqa: BLE001 - any unreadable file is the user's to fix
+        with zipfile.ZipFile(path) as z:
+            total = sum(i.file_size for i in z.infolist())
+    except (zipfile.BadZipFile, OSError, ValueError) as exc:
         raise InputError(f"not a readable .xlsx workbook ({type(exc).__name__}: {exc}); save "
                          "it from the spreadsheet program as an Excel workbook (.xlsx)",
-                         source=path.name) from None
+                         source=short_name(path.name)) from None
+    if total > MAX_UNZIPPED_BYTES:
+        raise InputError(f"the workbook unpacks to {total:,} bytes, over the "
+                         f"{MAX_UNZIPPED_BYTES:,}-byte limit of an input workbook (a scenario "
+                         "fills a few hundred cells): delete stray rows and columns, or copy "
+                         "the scenario into a fresh template", source=short_name(path.name))
+
+
+def _open(path: Path):
+    from openpyxl import load_workbook
+    from planner.fileio import MAX_WORKBOOK_BYTES, input_file
+    path = input_file(path, ".xlsx workbook", MAX_WORKBOOK_BYTES)
+    _check_zip(path)
+    try:
+        # openpyxl parses with defusedxml when it is installed (a core dependency):
+        # entity expansion and external entities are refused
+        return load_workbook(path, data_only=True)
+    except Exception as exc:  # noqa: BLE001 - any unreadable file is the user's to fix
+        from planner.fileio import short_name
+        text = " ".join(f"{type(exc).__name__}: {exc}".split())
+        chain, e = [], exc
+        while e is not None and len(chain) < 10:
+            chain.append(type(e).__name__)
+            e = e.__cause__ or e.__context__
+        if any("Forbidden" in n or "Entit" in n for n in chain):
+            why = ("its XML declares entities, which Broodline refuses: a workbook saved by "
+                   "a spreadsheet program has none")
+        else:
+            why = text if len(text) <= 160 else text[:150] + " ..."
+        raise InputError(f"not a readable .xlsx workbook ({why}); save it from the "
+                         "spreadsheet program as an Excel workbook (.xlsx)",
+                         source=short_name(path.name)) from None
 
 
 def _match_sheets(wb, reader: _Reader) -> dict[str, object]:

@@ -1,0 +1,123 @@
+"""Hostile input workbooks (issue 12: the XML cases and item 12's zipped million-row
+sheet). Each is refused in one line, well under a second, without parsing the payload."""
+
+import time
+import zipfile
+from pathlib import Path
+
+import pytest
+
+from planner.errors import InputError, InputErrors
+from planner.scenario.workbook import MAX_UNZIPPED_BYTES, read_workbook
+
+TEMPLATE = Path(__file__).resolve().parents[2] / "templates" / "broodline-input.xlsx"
+
+_NS = 'xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"'
+
+
+def _sheet(doctype: str, text: str) -> str:
+    """A worksheet whose cell A1 holds ``text`` (an inline string)."""
+    return (f'<?xml version="1.0"?>\n{doctype}\n<worksheet {_NS}><sheetData><row r="1">'
+            f'<c r="A1" t="inlineStr"><is><t>{text}</t></is></c></row></sheetData>'
+            '</worksheet>')
+
+
+LAUGHS = _sheet('<!DOCTYPE worksheet [<!ENTITY lol "lol">'
+                + "".join(f'<!ENTITY lol{i} "{("&lol" + (str(i - 1) if i > 1 else "") + ";") * 10}">'
+                          for i in range(1, 10)) + "]>", "&lol9;")
+EXTERNAL = _sheet('<!DOCTYPE worksheet [<!ENTITY ext SYSTEM "file:///etc/passwd">]>', "&ext;")
+#: The template's first worksheet (the instructions); any parsed part would do.
+PART = "xl/worksheets/sheet1.xml"
+
+
+def _with_part(tmp_path, name: str, content: bytes | None = None, extra=None) -> Path:
+    """The template with one part replaced (or added)."""
+    out = tmp_path / "hostile.xlsx"
+    with zipfile.ZipFile(TEMPLATE) as src, zipfile.ZipFile(out, "w",
+                                                             zipfile.ZIP_DEFLATED) as dst:
+        names = src.namelist()
+        for item in names:
+            data = src.read(item)
+            if item == name and content is not None:
+                data = content
+            dst.writestr(item, data)
+        if name not in names and content is not None:
+            dst.writestr(name, content)
+        if extra:
+            extra(dst)
+    return out
+
+
+def test_openpyxl_reads_with_defusedxml():
+    """openpyxl switches to defusedxml when it is installed (its documented behaviour);
+    Broodline depends on it."""
+    from openpyxl.xml import DEFUSEDXML
+    assert DEFUSEDXML is True
+
+
+@pytest.mark.parametrize("payload", [LAUGHS, EXTERNAL], ids=["entity-expansion", "external"])
+def test_xml_entities_are_refused_in_one_line(tmp_path, payload):
+    f = _with_part(tmp_path, PART, payload.encode())
+    t0 = time.perf_counter()
+    with pytest.raises(InputError) as info:
+        read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+    line = str(info.value)
+    assert "not a readable .xlsx workbook" in line and "declares entities" in line
+    assert "root:" not in line  # nothing of /etc/passwd
+    assert len(line.splitlines()) == 1
+
+
+def test_a_very_long_string_is_refused_or_read_never_a_crash(tmp_path):
+    """A shared string of 20 MB (under the unpacked limit) in sharedStrings.xml, used by
+    a cell of every sheet's first row: whatever reports it shortens the value, never an
+    internal error."""
+    long = "x" * 20_000_000
+    sst = (f'<?xml version="1.0"?>\n<sst {_NS} count="1" uniqueCount="1"><si><t>{long}</t>'
+           '</si></sst>')
+
+    def extra(dst):
+        dst.writestr("xl/sharedStrings.xml", sst)
+
+    with zipfile.ZipFile(TEMPLATE) as z:
+        sheet = z.read("xl/worksheets/sheet2.xml").decode()
+    # the first cell of the second sheet (the first data sheet) refers to string 0
+    sheet = sheet.replace('t="inlineStr"><is><t>', 't="s"><v>0</v><is><t>', 1)
+    f = _with_part(tmp_path, "xl/worksheets/sheet2.xml", sheet.encode(), extra=extra)
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_workbook(f)
+    assert all(len(ln) < 2000 for ln in info.value.lines())
+
+
+def test_a_zipped_sheet_that_unpacks_too_far_is_refused_from_the_directory(tmp_path):
+    """Item 12: a million-row sheet zipped to a few MB took over 60 s in `check`. The zip
+    directory gives the unpacked size before any sheet is parsed."""
+    rows = "".join(f'<row r="{i}"><c r="A{i}" t="inlineStr"><is><t>x</t></is></c></row>'
+                   for i in range(1, 1_000_001))
+    sheet = ('<?xml version="1.0"?><worksheet xmlns="http://schemas.openxmlformats.org/'
+             f'spreadsheetml/2006/main"><sheetData>{rows}</sheetData></worksheet>').encode()
+    assert len(sheet) > MAX_UNZIPPED_BYTES
+    f = _with_part(tmp_path, "xl/worksheets/sheet1.xml", sheet)
+    assert f.stat().st_size < 6_000_000
+    t0 = time.perf_counter()
+    with pytest.raises(InputError, match="unpacks to"):
+        read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+
+
+@pytest.mark.parametrize("kind", ["link-to-dev-zero", "fifo", "folder"])
+def test_a_workbook_that_is_not_a_regular_file_is_refused_at_once(tmp_path, kind):
+    """Item 4: a workbook linked to /dev/zero grew to 8.2 GB; a FIFO hung."""
+    import os
+    f = tmp_path / "book.xlsx"
+    if kind == "link-to-dev-zero":
+        f.symlink_to("/dev/zero")
+    elif kind == "fifo":
+        os.mkfifo(f)
+    else:
+        f.mkdir()
+    t0 = time.perf_counter()
+    with pytest.raises(InputError) as info:
+        read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+    assert "regular file" in str(info.value) or "folder" in str(info.value)
