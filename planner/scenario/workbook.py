@@ -1145,15 +1145,28 @@ def _match_sheets(wb, reader: _Reader) -> dict[str, object]:
     used = {ws.title for ws in found.values() if ws is not None}
     spare = [ws.title for ws in wb.worksheets if ws.title not in used
              and ws.title.strip().lower() != INSTRUCTIONS.lower()]
+    if all(ws is None for ws in found.values()):
+        # a blank or foreign workbook is one mistake, not one per sheet
+        reader.problem("none of Broodline's input sheets (" + ", ".join(
+            spec.title for spec in SHEETS) + ") is in this workbook; start from the "
+            "template (broodline template OUT.xlsx)")
+        return found
+    plain = []
     for spec in SHEETS:
         if found[spec.title] is None:
             hint = closest(spec.title, spare) or closest(spec.title.lower(),
                                                          [s.lower() for s in spare])
             hint = next((s for s in spare if s.lower() == (hint or "").lower()), hint)
-            why = f"the sheet {spec.title!r} is missing"
-            why += (f"; a sheet is called {hint!r}: rename it to {spec.title!r}" if hint
-                    else "; copy it from the template (broodline template OUT.xlsx)")
-            reader.problem(why)
+            if hint:
+                reader.problem(f"the sheet {spec.title!r} is missing; a sheet is called "
+                               f"{hint!r}: rename it to {spec.title!r}")
+            else:
+                plain.append(spec.title)
+    if plain:
+        what = f"the sheet {plain[0]!r} is" if len(plain) == 1 else \
+            "the sheets " + ", ".join(repr(t) for t in plain) + " are"
+        reader.problem(f"{what} missing; copy {'it' if len(plain) == 1 else 'them'} from "
+                       "the template (broodline template OUT.xlsx)")
     return found
 
 
@@ -1183,6 +1196,16 @@ def read_workbook(path: str | Path) -> Scenario:
     wb = _open(path)
     reader = _Reader(path.name)
     sheets = _match_sheets(wb, reader)
+    for title, ws in sheets.items():
+        merged = [str(r) for r in getattr(ws, "merged_cells", None) or ()] \
+            if ws is not None else []
+        if merged:
+            # a merged range keeps only its first cell's value: the others would be
+            # read as empty (and an empty field takes its default without a word)
+            shown = ", ".join(merged[:5]) + (f" and {len(merged) - 5} more"
+                                             if len(merged) > 5 else "")
+            reader.problem(f"sheet {title!r} has merged cells ({shown}); unmerge them and "
+                           "give each cell its own value")
     if reader.problems:
         _raise(reader.problems)
     for spec in SHEETS:

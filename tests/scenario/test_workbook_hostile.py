@@ -121,3 +121,47 @@ def test_a_workbook_that_is_not_a_regular_file_is_refused_at_once(tmp_path, kind
         read_workbook(f)
     assert time.perf_counter() - t0 < 1.0
     assert "regular file" in str(info.value) or "folder" in str(info.value)
+
+
+def test_a_blank_workbook_is_one_line(tmp_path):
+    """Item 14: a blank workbook gave one line per missing sheet (18 lines)."""
+    import openpyxl
+    f = tmp_path / "blank.xlsx"
+    openpyxl.Workbook().save(f)
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_workbook(f)
+    lines = info.value.lines()
+    assert len(lines) == 1 and "none of Broodline's input sheets" in lines[0], lines
+
+
+def _template_with(tmp_path, edit) -> Path:
+    import openpyxl
+    wb = openpyxl.load_workbook(TEMPLATE)
+    edit(wb)
+    f = tmp_path / "edited.xlsx"
+    wb.save(f)
+    return f
+
+
+@pytest.mark.parametrize("sheet,cells", [("Plan", "A2:B2"), ("Calendar", "B2:B3")])
+def test_merged_cells_are_refused_naming_the_range(tmp_path, sheet, cells):
+    """Item 13: a merged cell over the plan horizon let the default of 26 weeks be used
+    without a word; merged calendar cells lost the covered values."""
+    f = _template_with(tmp_path, lambda wb: wb[sheet].merge_cells(cells))
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_workbook(f)
+    lines = info.value.lines()
+    assert len(lines) == 1 and "merged cells" in lines[0] and cells in lines[0], lines
+
+
+@pytest.mark.parametrize("cell", ["B2", "C2"])
+def test_true_false_cells_are_not_numbers_or_weeks(tmp_path, cell):
+    """Item 13: `first_week = true` was taken as week 1; in a workbook a TRUE cell in a
+    number or week column is refused, naming the cell."""
+    def edit(wb):
+        wb["Orders"][cell] = True
+    f = _template_with(tmp_path, edit)
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_workbook(f)
+    lines = info.value.lines()
+    assert len(lines) == 1 and "Orders" in lines[0] and "true/false" in lines[0], lines
