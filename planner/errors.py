@@ -25,16 +25,22 @@ __all__ = [
 ]
 
 
-#: Longest value shown in a message [characters]; longer ones are shortened in the middle.
+#: Longest value or file name shown in a message [characters]; longer ones are
+#: shortened in the middle (a message never repeats a 100 kB name).
 MAX_VALUE_CHARS = 120
 
 
+def shorten(text: str, limit: int = MAX_VALUE_CHARS) -> str:
+    """``text`` as shown in a message: cut in the middle when over ``limit`` characters,
+    with its full length said."""
+    if len(text) <= limit:
+        return text
+    keep = (limit - 5) // 2
+    return f"{text[:keep]} ... {text[-keep:]} ({len(text)} characters)"
+
+
 def _fmt_value(value: object) -> str:
-    text = repr(value) if isinstance(value, str) else str(value)
-    if len(text) > MAX_VALUE_CHARS:
-        keep = (MAX_VALUE_CHARS - 5) // 2
-        text = f"{text[:keep]} ... {text[-keep:]} ({len(text)} characters)"
-    return text
+    return shorten(repr(value) if isinstance(value, str) else str(value))
 
 
 class BroodlineError(Exception):

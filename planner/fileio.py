@@ -9,7 +9,7 @@ from collections.abc import Callable
 from contextlib import contextmanager
 from pathlib import Path
 
-from planner.errors import InputError
+from planner.errors import MAX_VALUE_CHARS, InputError, shorten
 
 __all__ = ["atomic_path", "write_text_atomic", "write_atomic", "read_text", "save_workbook",
            "input_file", "output_file", "MAX_TEXT_BYTES", "MAX_WORKBOOK_BYTES", "short_name"]
@@ -19,17 +19,12 @@ MAX_TEXT_BYTES = 20_000_000
 #: Largest input workbook read [bytes].
 MAX_WORKBOOK_BYTES = 50_000_000
 #: Longest file name shown in a message [characters]; longer ones are shortened.
-MAX_NAME_CHARS = 120
+MAX_NAME_CHARS = MAX_VALUE_CHARS
 
 
 def short_name(path: str | Path, limit: int = MAX_NAME_CHARS) -> str:
-    """A path as shown in a message: shortened in the middle when over ``limit``
-    characters (a message never repeats a 100 kB name)."""
-    text = str(path)
-    if len(text) <= limit:
-        return text
-    keep = (limit - 5) // 2
-    return f"{text[:keep]} ... {text[-keep:]} ({len(text)} characters)"
+    """A path as shown in a message (see :func:`planner.errors.shorten`)."""
+    return shorten(str(path), limit)
 
 
 def input_file(path: str | Path, kind: str, max_bytes: int) -> Path:
@@ -58,6 +53,12 @@ def input_file(path: str | Path, kind: str, max_bytes: int) -> Path:
     return path
 
 
+def _cannot_write(target: Path, kind: str, exc: OSError) -> InputError:
+    return InputError(f"the {kind} cannot be written here "
+                      f"({exc.strerror or type(exc).__name__}); choose another folder",
+                      source=short_name(target))
+
+
 def output_file(target: str | Path, kind: str = "output") -> Path:
     """Check, before any work, that ``target`` can be written: its folder exists and
     takes a new file, and the name is not a folder. A run that would fail only at the
@@ -75,9 +76,7 @@ def output_file(target: str | Path, kind: str = "output") -> Path:
     except InputError:
         raise
     except OSError as exc:
-        raise InputError(f"the {kind} cannot be written here "
-                         f"({exc.strerror or type(exc).__name__}); choose another folder",
-                         source=shown) from None
+        raise _cannot_write(target, kind, exc) from None
     os.close(fd)
     os.unlink(tmp)
     return target
@@ -97,9 +96,7 @@ def atomic_path(target: str | Path, suffix: str | None = None):
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name[:100]}.",
                                    suffix=suffix or target.suffix, dir=folder)
     except OSError as exc:
-        raise InputError(f"the output cannot be written here "
-                         f"({exc.strerror or type(exc).__name__})",
-                         source=short_name(target)) from None
+        raise _cannot_write(target, "output", exc) from None
     os.close(fd)
     tmp_path = Path(tmp)
     umask = os.umask(0)
@@ -110,9 +107,7 @@ def atomic_path(target: str | Path, suffix: str | None = None):
         try:
             os.replace(tmp_path, target)
         except OSError as exc:  # e.g. the target is a folder
-            raise InputError(f"the output cannot be written here "
-                             f"({exc.strerror or type(exc).__name__})",
-                             source=short_name(target)) from None
+            raise _cannot_write(target, "output", exc) from None
     except BaseException:
         tmp_path.unlink(missing_ok=True)
         raise

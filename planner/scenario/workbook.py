@@ -1092,6 +1092,12 @@ _TEXT = Slot(path=(), kind="text", unit="text", description="", required=False)
 MAX_UNZIPPED_BYTES = 30_000_000
 
 
+def _unreadable(path: Path, why: str) -> InputError:
+    from planner.fileio import short_name
+    return InputError(f"not a readable .xlsx workbook ({why}); save it from the spreadsheet "
+                      "program as an Excel workbook (.xlsx)", source=short_name(path.name))
+
+
 def _check_zip(path: Path) -> None:
     """Refuse, from the zip directory alone (no sheet is parsed), a workbook whose parts
     unpack to more than :data:`MAX_UNZIPPED_BYTES`."""
@@ -1101,9 +1107,7 @@ def _check_zip(path: Path) -> None:
         with zipfile.ZipFile(path) as z:
             total = sum(i.file_size for i in z.infolist())
     except (zipfile.BadZipFile, OSError, ValueError) as exc:
-        raise InputError(f"not a readable .xlsx workbook ({type(exc).__name__}: {exc}); save "
-                         "it from the spreadsheet program as an Excel workbook (.xlsx)",
-                         source=short_name(path.name)) from None
+        raise _unreadable(path, f"{type(exc).__name__}: {exc}") from None
     if total > MAX_UNZIPPED_BYTES:
         raise InputError(f"the workbook unpacks to {total:,} bytes, over the "
                          f"{MAX_UNZIPPED_BYTES:,}-byte limit of an input workbook (a scenario "
@@ -1121,7 +1125,6 @@ def _open(path: Path):
         # entity expansion and external entities are refused
         return load_workbook(path, data_only=True)
     except Exception as exc:  # noqa: BLE001 - any unreadable file is the user's to fix
-        from planner.fileio import short_name
         text = " ".join(f"{type(exc).__name__}: {exc}".split())
         chain, e = [], exc
         while e is not None and len(chain) < 10:
@@ -1132,9 +1135,7 @@ def _open(path: Path):
                    "a spreadsheet program has none")
         else:
             why = text if len(text) <= 160 else text[:150] + " ..."
-        raise InputError(f"not a readable .xlsx workbook ({why}); save it from the "
-                         "spreadsheet program as an Excel workbook (.xlsx)",
-                         source=short_name(path.name)) from None
+        raise _unreadable(path, why) from None
 
 
 def _match_sheets(wb, reader: _Reader) -> dict[str, object]:
