@@ -347,11 +347,24 @@ def _outputs_writable(workbook: Path, args) -> None:
                     "CSV tables")
 
 
+def replay_fits(scn, args) -> None:
+    """Refuse, before any solve, a replicate count whose replay would not fit in memory
+    (the replay runs after the plan is made)."""
+    import math
+    from planner.optimise.data import lead_time_days
+    from planner.risk.simulate import check_replay_size
+    la = scn.plan.lookahead_weeks
+    if la is None:
+        la = math.ceil(lead_time_days(scn) / 7)
+    check_replay_size(7 * (scn.plan.horizon_weeks + la), args.replicates)
+
+
 def _cmd_plan(args) -> int:
     path = Path(args.scenario)
     scn = load_scenario(path)
     out = Path(args.output) if args.output else path.with_name(f"{path.stem}-plan.xlsx")
     _outputs_writable(out, args)
+    replay_fits(scn, args)
     res, margin = _plan_or_margin(scn, args,
                                   f"planning {path.name} ({args.solver or scn.plan.solver})")
     return _finish(res, args, out, path.name, margin)
@@ -360,5 +373,6 @@ def _cmd_plan(args) -> int:
 def _cmd_demo(args) -> int:
     scn = load_scenario(demo_scenario_path("fly"))
     _outputs_writable(Path(args.output), args)
+    replay_fits(scn, args)
     res, margin = _plan_or_margin(scn, args, "planning the demo")
     return _finish(res, args, Path(args.output), "embedded demo (invented data)", margin)

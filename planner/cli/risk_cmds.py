@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from planner.cli.format import dumps, num, table
-from planner.cli.plan_cmds import (RISK_CAUTION, margin_lines, risk_options, risk_rows,
+from planner.cli.plan_cmds import (RISK_CAUTION, margin_lines, replay_fits, risk_options, risk_rows,
                                    run_margin, solver_options)
 from planner.errors import NoPlanError
 from planner.cautions import CAUTIONS
@@ -39,6 +39,7 @@ def _cmd_risk(args) -> int:
 
     scn = load_scenario(args.scenario)
     cur = scn.costs.currency
+    replay_fits(scn, args)
     margin = None
     if args.target_fill is not None:
         margin = run_margin(scn, args, f"risk of {Path(args.scenario).name}")

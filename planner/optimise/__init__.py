@@ -70,8 +70,8 @@ def plan_horizon(scn, settings: SolveSettings | None = None, *, start: StartBatc
                            use_expansion=use_expansion)
     built = build_model(data)
     # the time limit bounds the whole plan: what building took is not the solver's
-    left = max(settings.time_limit - (time.perf_counter() - t0), 1.0)
-    return read_back(built, solve(built.model, dataclasses.replace(settings, time_limit=left)))
+    spent = settings.spent + time.perf_counter() - t0
+    return read_back(built, solve(built.model, dataclasses.replace(settings, spent=spent)))
 
 
 def plan_standard_week(scn, weekly_volume: float, settings: SolveSettings | None = None, *,

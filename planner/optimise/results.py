@@ -538,6 +538,9 @@ def diagnose_shortfalls(res: PlanResult) -> list[dict]:
         return (not c["shipping_days"] or bool(c["shipping_days_lost"])
                 or bool(c["kitchen_shut_holidays"]))
 
+    window: dict[int, tuple] = {}   # week: facts of the days that feed it (any customer)
+    usual: dict[str, float | None] = {}
+
     for row in rows:
         w0 = 7 * (row.week - 1)
         lo, hi = max(w0 - lead, 0), w0 + 6
@@ -555,18 +558,11 @@ def diagnose_shortfalls(res: PlanResult) -> list[dict]:
                         + ": nothing can be received that week.")
             out.append(item)
             continue
-        win = util[(util["day"] >= lo) & (util["day"] <= hi) & (util["available"] > 0)]
-        saturated = []
-        for resource, g in win.groupby("resource", sort=False):
-            full = int((g["utilisation"] >= SATURATED).sum())
-            if full:
-                saturated.append({"resource": resource, "days_full": full,
-                                  "days": int(len(g))})
-        saturated.sort(key=lambda s: -s["days_full"])
+        if row.week not in window:
+            window[row.week] = _window_facts(util, daily, lo, hi, data.seed_lag)
+        saturated, eggs_tight = window[row.week]
+        saturated = [dict(x) for x in saturated]
         item["saturated"] = saturated
-        eggs_tight = int(((daily["eggs_discarded"] <= 1e-6 * np.maximum(
-            daily["eggs_collected"], 1)) & (daily["day"] >= lo - data.seed_lag) &
-            (daily["day"] <= hi - data.seed_lag) & (daily["eggs_collected"] > 0)).sum())
         notes = []
         if cal["shipping_days_lost"]:
             notes.append("holidays took shipping days "
@@ -593,8 +589,12 @@ def diagnose_shortfalls(res: PlanResult) -> list[dict]:
             cause = "lead time"
             words = (feed + " no capacity was full: the start state or the lead time "
                      "(eggs laid before the plan) limits this week.")
-        if lost(row.week) and _worse_than_usual(res, row, lost):
-            cause = "calendar"
+        if lost(row.week):
+            if row.customer not in usual:
+                usual[row.customer] = _usual_share(res, row.customer, lost)
+            mean = usual[row.customer]
+            if mean is None or mean < 0.5 * row.shortfall / row.ordered:
+                cause = "calendar"
         if notes:
             words += " Calendar: " + "; ".join(notes) + "."
         item.update(cause=cause, text=head + words)
@@ -602,16 +602,32 @@ def diagnose_shortfalls(res: PlanResult) -> list[dict]:
     return out
 
 
-def _worse_than_usual(res: PlanResult, row, lost) -> bool:
-    """Whether the customer's weeks that the holidays leave alone are short by less than
-    half this week's share of its order [-]."""
+def _window_facts(util: pd.DataFrame, daily: pd.DataFrame, lo: int, hi: int,
+                  seed_lag: int) -> tuple[list[dict], int]:
+    """The resources full in days lo..hi (a day of capacity 0 is not counted) and the
+    days in lo..hi (shifted back by the seeding lag) on which every egg was seeded."""
+    win = util[(util["day"] >= lo) & (util["day"] <= hi) & (util["available"] > 0)]
+    saturated = []
+    for resource, g in win.groupby("resource", sort=False):
+        full = int((g["utilisation"] >= SATURATED).sum())
+        if full:
+            saturated.append({"resource": resource, "days_full": full, "days": int(len(g))})
+    saturated.sort(key=lambda s: -s["days_full"])
+    eggs_tight = int(((daily["eggs_discarded"] <= 1e-6 * np.maximum(
+        daily["eggs_collected"], 1)) & (daily["day"] >= lo - seed_lag) &
+        (daily["day"] <= hi - seed_lag) & (daily["eggs_collected"] > 0)).sum())
+    return saturated, eggs_tight
+
+
+def _usual_share(res: PlanResult, customer: str, lost) -> float | None:
+    """The mean short share of the customer's weeks that the holidays leave alone [-]
+    (None when every ordered week has lost days)."""
     w = res.weekly
-    mine = w[(w["customer"] == row.customer) & (w["ordered"] > 0)]
+    mine = w[(w["customer"] == customer) & (w["ordered"] > 0)]
     usual = mine[[not lost(int(k)) for k in mine["week"]]]
-    share = row.shortfall / row.ordered
     if usual.empty:
-        return True
-    return float((usual["shortfall"] / usual["ordered"]).mean()) < 0.5 * share
+        return None
+    return float((usual["shortfall"] / usual["ordered"]).mean())
 
 
 def _calendar_json(data, cal: dict) -> dict:

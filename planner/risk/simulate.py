@@ -241,6 +241,28 @@ REPLAY_BYTES_PER_DAY = 64
 MAX_REPLAY_BYTES = 2_000_000_000
 
 
+def check_replay_size(n_days: int, replicates: int) -> None:
+    """Refuse a replay whose memory would pass :data:`MAX_REPLAY_BYTES` (called before
+    the plan is solved by the command line, and again by :func:`replay`).
+
+    Parameters
+    ----------
+    n_days : int
+        Days of the plan, look-ahead included [day].
+    replicates : int
+        Replays asked for [-].
+    """
+    R = int(replicates)
+    need = REPLAY_BYTES_PER_DAY * n_days * R
+    if need > MAX_REPLAY_BYTES:
+        most = MAX_REPLAY_BYTES // (REPLAY_BYTES_PER_DAY * n_days)
+        raise InputError(
+            f"{R:,} replays of a {n_days}-day plan need about {need / 1e9:.1f} GB, over "
+            f"the {MAX_REPLAY_BYTES / 1e9:g} GB limit of a replay; use at most {most:,} "
+            f"(2,000 already give each fill probability to about +-1 %)",
+            place="--replicates", value=R)
+
+
 def replay(plan: PlanResult, variation: Variation | None = None, replicates: int = 1000,
            seed: int | None = 0, ordered: np.ndarray | None = None,
            binomial: bool = True) -> RiskResult:
@@ -269,14 +291,7 @@ def replay(plan: PlanResult, variation: Variation | None = None, replicates: int
     R = int(replicates)
     A = _plan_arrays(plan)
     data = A["data"]
-    need = REPLAY_BYTES_PER_DAY * data.n_days * R
-    if need > MAX_REPLAY_BYTES:
-        most = MAX_REPLAY_BYTES // (REPLAY_BYTES_PER_DAY * data.n_days)
-        raise InputError(
-            f"{R:,} replays of a {data.n_days}-day plan need about {need / 1e9:.1f} GB, over "
-            f"the {MAX_REPLAY_BYTES / 1e9:g} GB limit of a replay; use at most {most:,} "
-            f"(2,000 already give each fill probability to about +-1 %)",
-            place="--replicates", value=R)
+    check_replay_size(data.n_days, R)
     U = PUPAE_UNIT
     n = data.n_days
     lx = data.lx

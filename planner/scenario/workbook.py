@@ -782,6 +782,18 @@ class _Reader:
         self.problems: list[InputError] = []
         self.covered: set[tuple] = set()   # locations whose 'required' errors are redundant
         self.replaced: set[tuple] = set()  # locations whose errors are already reported
+        self.box: dict[str, tuple[int, int]] = {}  # sheet title: (last row, last column)
+
+    def _iter(self, ws, min_row: int, max_row: int | None = None, max_col: int | None = None):
+        """ws.iter_rows(values_only=True) within the sheet's used range (a stray
+        formatted cell at XFD1048576 does not make a million-row walk)."""
+        rows, cols = self.box.get(ws.title, (ws.max_row, ws.max_column))
+        max_row = rows if max_row is None else min(max_row, rows)
+        max_col = cols if max_col is None else min(max_col, cols)
+        if max_row < min_row:
+            return iter(())
+        return ws.iter_rows(min_row=min_row, max_row=max_row, max_col=max_col,
+                            values_only=True)
 
     def problem(self, why: str, place: str | None = None, **value) -> None:
         self.problems.append(InputError(why, source=self.source, place=place, **value))
@@ -793,7 +805,7 @@ class _Reader:
         self._check_field_headers(ws, spec)
         seen: dict[Slot, int] = {}
         flags: dict[tuple, list[tuple[int, str, bool | None]]] = {}
-        for r, row in enumerate(ws.iter_rows(min_row=2, max_col=3, values_only=True), 2):
+        for r, row in enumerate(self._iter(ws, 2, max_col=3), 2):
             name, value, unit = (tuple(row) + (None, None, None))[:3]
             slot = self._field_slot(spec, slots, name, value, r, seen)
             if slot is None:
@@ -838,7 +850,7 @@ class _Reader:
             return None
 
     def _check_field_headers(self, ws, spec: SheetSpec) -> None:
-        head = next(ws.iter_rows(min_row=1, max_row=1, max_col=2, values_only=True), ())
+        head = next(self._iter(ws, 1, 1, 2), ())
         want = spec.headers[:2]
         got = tuple(_norm(h) if h is not None else "" for h in (tuple(head) + ("", ""))[:2])
         if got != tuple(_norm(h) for h in want):
@@ -881,7 +893,7 @@ class _Reader:
     # -- table sheets ------------------------------------------------------------------
     def _columns(self, ws, spec: SheetSpec, slots: list[Slot]) -> dict[int, Slot]:
         """Match the header row to the slots: {column index (0-based): slot}."""
-        head = next(ws.iter_rows(min_row=1, max_row=1, values_only=True), ())
+        head = next(self._iter(ws, 1, 1), ())
         found: dict[int, Slot] = {}
         where = f"sheet '{spec.title}', row 1"
         for j, text in enumerate(head):
@@ -931,7 +943,7 @@ class _Reader:
     def _data_rows(self, ws, spec: SheetSpec, columns: dict[int, Slot]):
         """(row number, {slot: cell value}) of every non-empty row."""
         headless_reported: set[int] = set()
-        for r, row in enumerate(ws.iter_rows(min_row=2, values_only=True), start=2):
+        for r, row in enumerate(self._iter(ws, 2), start=2):
             cells = {slot: row[j] for j, slot in columns.items() if j < len(row)}
             for j, value in enumerate(row):
                 if j not in columns and j not in headless_reported \
@@ -1100,19 +1112,82 @@ def _unreadable(path: Path, why: str) -> InputError:
 
 def _check_zip(path: Path) -> None:
     """Refuse, from the zip directory alone (no sheet is parsed), a workbook whose parts
-    unpack to more than :data:`MAX_UNZIPPED_BYTES`."""
+    unpack to more than :data:`MAX_UNZIPPED_BYTES`, and from a byte count of each sheet's
+    rows one with more than :data:`MAX_SHEET_ROWS` rows."""
     import zipfile
     from planner.fileio import short_name
+    counts: dict[str, int] = {}
     try:
         with zipfile.ZipFile(path) as z:
             total = sum(i.file_size for i in z.infolist())
-    except (zipfile.BadZipFile, OSError, ValueError) as exc:
+            if total <= MAX_UNZIPPED_BYTES:
+                counts = _row_counts(z)
+    except (zipfile.BadZipFile, OSError, ValueError, KeyError, SyntaxError, RuntimeError,
+            NotImplementedError) as exc:
         raise _unreadable(path, f"{type(exc).__name__}: {exc}") from None
     if total > MAX_UNZIPPED_BYTES:
         raise InputError(f"the workbook unpacks to {total:,} bytes, over the "
                          f"{MAX_UNZIPPED_BYTES:,}-byte limit of an input workbook (a scenario "
                          "fills a few hundred cells): delete stray rows and columns, or copy "
                          "the scenario into a fresh template", source=short_name(path.name))
+    over = [(title, n) for title, n in counts.items() if n > MAX_SHEET_ROWS]
+    if over:
+        title, n = over[0]
+        raise InputError(f"sheet {title!r} has {n:,} rows, over the {MAX_SHEET_ROWS:,}-row limit "
+                         "of an input sheet: delete the rows below the table (select them, "
+                         "Delete rows), or copy the scenario into a fresh template",
+                         source=short_name(path.name))
+
+
+def _row_counts(z) -> dict[str, int]:
+    """{sheet title: number of <row> elements in its XML}, counted on the raw bytes before
+    any sheet is parsed (the sheet titles from the small workbook part, parsed with
+    defusedxml)."""
+    import re
+    from defusedxml import ElementTree
+    names = set(z.namelist())
+    titles: dict[str, str] = {}
+    if "xl/workbook.xml" in names and "xl/_rels/workbook.xml.rels" in names:
+        rels = {el.get("Id"): el.get("Target") for el in
+                ElementTree.fromstring(z.read("xl/_rels/workbook.xml.rels")).iter()
+                if el.tag.endswith("Relationship")}
+        for el in ElementTree.fromstring(z.read("xl/workbook.xml")).iter():
+            if el.tag.endswith("}sheet") or el.tag == "sheet":
+                rid = next((v for k, v in el.attrib.items() if k.endswith("}id")), None)
+                target = (rels.get(rid) or "").lstrip("/")
+                part = target if target.startswith("xl/") else "xl/" + target
+                titles[part] = el.get("name") or part
+    pattern = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?row[\s/>]")
+    counts = {}
+    for part in names:
+        if part.startswith("xl/worksheets/") and part.endswith(".xml"):
+            counts[titles.get(part, part)] = len(pattern.findall(z.read(part)))
+    return counts
+
+
+#: Most rows and columns an input sheet may use: a scenario fills a few hundred rows (at
+#: most 200 orders; a life table of a few hundred days) and a dozen columns.
+MAX_SHEET_ROWS = 5_000
+MAX_SHEET_COLUMNS = 100
+
+
+def _used_box(ws) -> tuple[int, int, str | None]:
+    """(last row, last column) holding a value (blank text and formatting-only cells do
+    not count), and the farthest such cell (A1 style) when it lies beyond the limits."""
+    from openpyxl.utils import get_column_letter
+    cells = getattr(ws, "_cells", None)
+    if cells is None:  # another openpyxl: fall back to the sheet's own dimensions
+        return ws.max_row, ws.max_column, None
+    rows = cols = 0
+    far = None
+    for (r, c), cell in cells.items():
+        v = cell.value
+        if v is None or (isinstance(v, str) and not v.strip()):
+            continue
+        rows, cols = max(rows, r), max(cols, c)
+        if (r > MAX_SHEET_ROWS or c > MAX_SHEET_COLUMNS) and far is None:
+            far = f"{get_column_letter(c)}{r}"
+    return rows, cols, far
 
 
 def _open(path: Path):
@@ -1207,6 +1282,14 @@ def read_workbook(path: str | Path) -> Scenario:
                                              if len(merged) > 5 else "")
             reader.problem(f"sheet {title!r} has merged cells ({shown}); unmerge them and "
                            "give each cell its own value")
+        if ws is not None:
+            rows, cols, far = _used_box(ws)
+            if far is not None:
+                reader.problem(f"sheet {title!r} has a value in cell {far}, beyond the "
+                               f"{MAX_SHEET_ROWS:,} rows and {MAX_SHEET_COLUMNS} columns an "
+                               "input sheet may use; clear it (or delete those rows and "
+                               "columns)")
+            reader.box[ws.title] = (max(rows, 1), max(cols, 1))
     if reader.problems:
         _raise(reader.problems)
     for spec in SHEETS:

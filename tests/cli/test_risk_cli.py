@@ -146,3 +146,20 @@ def test_bad_risk_options_are_one_line_exit_2(argv, needle, capsys):
     code, _, err = _run(argv, capsys)
     lines = err.strip().splitlines()
     assert code == 2 and len(lines) == 1 and needle in lines[0]
+
+
+@pytest.mark.parametrize("command", ["risk", "plan"])
+def test_too_many_replicates_are_refused_before_the_solve(six_weeks, command, capsys,
+                                                          monkeypatch):
+    """Issue 12 item 11: `risk --replicates 10000000` grew 40 MB/s to 8 GB before printing
+    anything. The count is refused from the plan's length before any model is built."""
+    import planner.optimise
+
+    def no_solve(*a, **k):
+        raise AssertionError("solved before the replicate count was checked")
+    monkeypatch.setattr(planner.optimise, "plan_horizon", no_solve)
+    code, _, err = _run([command, str(six_weeks), "--replicates", "10000000", "--quiet"],
+                        capsys)
+    lines = err.strip().splitlines()
+    assert code == 2 and len(lines) == 1, lines
+    assert "GB" in lines[0] and "--replicates" in lines[0] and "use at most" in lines[0]

@@ -87,28 +87,29 @@ def test_bad_luck_costs_fill_and_the_colony_is_served_first(fly_plan):
 
 
 @pytest.fixture(scope="module")
-def eight_weeks(fly):
+def six_weeks(fly):
+    """The demo over six weeks (weeks 5-6 are those a margin from week 5 changes)."""
     scn = fly.model_copy(deep=True)
-    scn.plan.horizon_weeks = 8
+    scn.plan.horizon_weeks = 6
     return scn
 
 
-def test_fill_rises_with_the_margin(eight_weeks):
-    settings = settings_for(eight_weeks, time_limit=30)
+def test_fill_rises_with_the_margin(six_weeks):
+    settings = settings_for(six_weeks, time_limit=30)
     book = None  # the real orders: those of the plan without a margin
     fills = []
     for m in (0.0, 0.06, 0.15):
-        plan = plan_with_margin(eight_weeks, m, settings, from_week=5)
+        plan = plan_with_margin(six_weeks, m, settings, from_week=5)
         book = plan.data.ordered if book is None else book
         r = replay(plan, replicates=1500, seed=4, ordered=book)
         fills.append(r.worst_fill(5))
     assert fills[0] < fills[1] < fills[2]
 
 
-def test_the_found_margin_holds_on_a_fresh_seed(eight_weeks):
+def test_the_found_margin_holds_on_a_fresh_seed(six_weeks):
     target = 0.8
-    res = safety_margin(eight_weeks, target, replicates=1000, seed=21, tolerance=0.02,
-                        settings=settings_for(eight_weeks, time_limit=30))
+    res = safety_margin(six_weeks, target, replicates=1000, seed=21, tolerance=0.02,
+                        settings=settings_for(six_weeks, time_limit=30))
     s = res.summary()
     assert s["met"] and 0 < s["margin"] < 0.64
     assert s["extra_cost_per_week"] > 0

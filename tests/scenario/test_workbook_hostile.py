@@ -165,3 +165,54 @@ def test_true_false_cells_are_not_numbers_or_weeks(tmp_path, cell):
         read_workbook(f)
     lines = info.value.lines()
     assert len(lines) == 1 and "Orders" in lines[0] and "true/false" in lines[0], lines
+
+
+def test_a_stray_value_at_the_last_cell_is_refused_naming_it(tmp_path):
+    """Item 12: one stray cell at XFD1048576 made `check` walk the whole sheet (over 60 s).
+    A value beyond the rows and columns an input sheet may use is named and refused."""
+    f = _template_with(tmp_path, lambda wb: wb["Orders"].cell(row=1_048_576, column=16_384,
+                                                              value="x"))
+    t0 = time.perf_counter()
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+    lines = info.value.lines()
+    assert len(lines) == 1 and "XFD1048576" in lines[0] and "Orders" in lines[0], lines
+
+
+def test_a_formatted_empty_cell_far_out_changes_nothing(tmp_path):
+    """Item 12: a formatting-only cell at XFD1048576 (no value) is not part of the used
+    range: the workbook reads as before, without walking a million rows."""
+    from openpyxl.styles import PatternFill
+
+    def edit(wb):
+        wb["Orders"].cell(row=1_048_576, column=16_384).fill = PatternFill("solid",
+                                                                           fgColor="FFFF00")
+        wb["Plan"].cell(row=60_000, column=3).value = "   "
+    f = _template_with(tmp_path, edit)
+    t0 = time.perf_counter()
+    got = read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+    assert got == read_workbook(TEMPLATE)
+
+
+def test_a_hundred_thousand_order_rows_are_refused_before_parsing(tmp_path):
+    """Item 12: 100,000 order rows (inside the unpacked-size limit) took over 60 s in
+    `check`. The rows of each sheet are counted on the raw XML before any parse."""
+    from planner.scenario.workbook import MAX_SHEET_ROWS
+    import openpyxl
+    wb = openpyxl.load_workbook(TEMPLATE)
+    part = f"xl/worksheets/sheet{wb.sheetnames.index('Orders') + 1}.xml"
+    rows = "".join(f'<row r="{i}"><c r="A{i}" t="inlineStr"><is><t>c</t></is></c>'
+                   f'<c r="B{i}"><v>1</v></c><c r="D{i}"><v>0.5</v></c></row>'
+                   for i in range(2, 100_002))
+    sheet = (f'<?xml version="1.0"?><worksheet {_NS}><sheetData>{rows}</sheetData>'
+             '</worksheet>').encode()
+    assert len(sheet) < MAX_UNZIPPED_BYTES
+    f = _with_part(tmp_path, part, sheet)
+    t0 = time.perf_counter()
+    with pytest.raises(InputError) as info:
+        read_workbook(f)
+    assert time.perf_counter() - t0 < 1.0
+    text = str(info.value)
+    assert "'Orders'" in text and "100,000 rows" in text and f"{MAX_SHEET_ROWS:,}" in text
