@@ -60,7 +60,7 @@ def moth_plan(moth):
     """The second scenario, 8 weeks, with its real shortfalls (a hard instance: CBC may
     stop at the time limit with a feasible plan)."""
     from planner.optimise import plan_horizon, settings_for
-    return plan_horizon(moth, settings_for(moth, time_limit=25), horizon_weeks=8)
+    return plan_horizon(moth, settings_for(moth, time_limit=10), horizon_weeks=8)
 
 
 @pytest.fixture(scope="session")

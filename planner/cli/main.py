@@ -12,6 +12,7 @@ import contextlib
 import os
 import sys
 import traceback
+import warnings
 
 from planner import __version__
 from planner.errors import BroodlineError
@@ -75,6 +76,10 @@ def main(argv: list[str] | None = None) -> int:
     if argv is None:  # the console script: SIGTERM cleans up like Ctrl-C
         _terminate_as_interrupt()
     argv = sys.argv[1:] if argv is None else argv
+    if not os.environ.get("BROODLINE_DEBUG"):
+        # numpy's overflow warnings name a source line, not the input: the inputs are
+        # bounded at reading and the model's rows are checked, so they are noise here
+        warnings.filterwarnings("ignore", category=RuntimeWarning, module=r"(numpy|planner)")
     try:
         parser = build_parser()
         args = parser.parse_args(argv)

@@ -248,12 +248,20 @@ def dominant_eigenvalue(a: np.ndarray) -> float:
     return float(np.max(vals.real))
 
 
+#: Most eggs per female per day a colony model may give [eggs/female/day]: the most
+#: fecund insects known (termite and ant queens) lay some tens of thousands a day (a fact
+#: of the trade, typed from memory); a larger mx is a unit or typing mistake.
+MAX_COLONY_MX = 1e6
+
+
 def validate_life_table(age, lx, mx, *, source: str | None = None,
-                        rows: list[int] | None = None) -> list[str]:
+                        rows: list[int] | None = None,
+                        max_mx: float | None = None) -> list[str]:
     """Check a life table and return notes on what was adjusted.
 
     Raises :class:`InputError` naming the row for: ages not ascending or repeated,
-    negative ages, lx outside [0, 1] or increasing, negative mx, an empty table or
+    negative ages, lx outside [0, 1] or increasing, negative mx, mx above ``max_mx``
+    (when given: a colony model passes :data:`MAX_COLONY_MX`), an empty table or
     columns of unequal length. Returns the list of notes (e.g. normalisation of l0).
     """
     age, lx, mx = _arrays(age, lx, mx)
@@ -296,6 +304,13 @@ def validate_life_table(age, lx, mx, *, source: str | None = None,
     if bad.size:
         raise InputError("mx (eggs per female per unit of age) cannot be negative", source=src,
                          place=place(bad[0], "mx"), value=float(mx[bad[0]]))
+    if max_mx is not None:
+        bad = np.flatnonzero(mx > max_mx)
+        if bad.size:
+            raise InputError(f"mx = {mx[bad[0]]:g} eggs per female per day is beyond any insect "
+                             f"(at most {max_mx:g}; the most fecund queens lay tens of "
+                             "thousands a day): check the unit of the mx column",
+                             source=src, place=place(bad[0], "mx"), value=float(mx[bad[0]]))
     notes = []
     if age[0] == 0 and lx[0] != 1.0:
         if lx[0] <= 0:

@@ -14,7 +14,7 @@ from pathlib import Path
 from pydantic import BaseModel, ValidationError
 
 from planner.csvtable import closest, read_csv_table
-from planner.demography.lifetable import validate_life_table
+from planner.demography.lifetable import MAX_COLONY_MX, validate_life_table
 from planner.errors import InputError, InputErrors
 from planner.fileio import read_text
 from planner.scenario.schema import ColonyModel, Scenario
@@ -145,6 +145,7 @@ def _message(err: dict, unit: str = "") -> str:
         "int_type": f"a whole number is needed{unit}",
         "float_parsing": f"a number is needed{unit}",
         "float_type": f"a number is needed{unit}",
+        "finite_number": f"must be a finite number (not inf or nan){unit}",
         "bool_parsing": "true or false is needed",
         "bool_type": "true or false is needed",
         "string_type": "a text is needed",
@@ -175,11 +176,22 @@ def validate(model: type[BaseModel], raw: dict, source: str, locate=None):
         Turns a field location into the place shown in messages (a workbook says sheet,
         row and column); default: the field path.
     """
+    grouped = locate is None  # a TOML file: one line per table for keys and missing fields
     locate = locate or format_loc
     problems: list[InputError] = []
+    unknown: dict[tuple, list[str]] = {}
     for loc, key, hint in unknown_keys(model, raw):
-        why = f"unknown key {key!r}" + (f" (did you mean {hint!r}?)" if hint else "")
-        problems.append(InputError(why, source=source, place=locate(loc) if loc else None))
+        unknown.setdefault(tuple(loc or ()), []).append(
+            repr(key) + (f" (did you mean {hint!r}?)" if hint else ""))
+    for loc, keys in unknown.items():
+        why = (f"unknown key {keys[0]}" if len(keys) == 1 or not grouped
+               else "unknown keys " + ", ".join(keys))
+        if grouped or len(keys) == 1:
+            problems.append(InputError(why, source=source, place=locate(loc) if loc else None))
+        else:
+            problems.extend(InputError(f"unknown key {k}", source=source,
+                                       place=locate(loc) if loc else None) for k in keys)
+    missing: dict[tuple, list[str]] = {}
     obj = None
     try:
         obj = model.model_validate(raw)
@@ -193,6 +205,9 @@ def validate(model: type[BaseModel], raw: dict, source: str, locate=None):
             parts = _message(err, _unit_of(model, loc)).split("\n")
             if len(parts) > 1:
                 problems.extend(InputError(p, source=source, place=place) for p in parts)
+                continue
+            if grouped and err.get("type") == "missing" and loc:
+                missing.setdefault(loc[:-1], []).append(str(loc[-1]))
                 continue
             value = err.get("input")
             show = loc and err.get("type") != "missing" and not isinstance(value, (dict, list))
@@ -210,6 +225,20 @@ def validate(model: type[BaseModel], raw: dict, source: str, locate=None):
                            **({"value": value} if show else {}))
             by_loc[loc] = e
             problems.append(e)
+        for parent, names in missing.items():
+            # a file cut short or a table moved is one mistake, however many fields it
+            # leaves out: one line per table
+            place = locate(parent) if parent else None
+            if len(names) == 1:
+                problems.append(InputError("this field is required", source=source,
+                                           place=locate(parent + (names[0],))))
+            else:
+                shown = ", ".join(names[:8]) + (f" and {len(names) - 8} more"
+                                                if len(names) > 8 else "")
+                problems.append(InputError(
+                    f"{len(names)} required fields are missing: {shown} (is the file "
+                    "complete, each key under its own [table]?)", source=source,
+                    place=place))
         if not problems:
             raise InputError(str(exc), source=source) from None
     if problems:
@@ -222,7 +251,8 @@ def validate(model: type[BaseModel], raw: dict, source: str, locate=None):
 def _read_life_table_file(path: Path) -> dict:
     table = read_csv_table(path, required=["age", "lx", "mx"])
     age, lx, mx = table.column("age"), table.column("lx"), table.column("mx")
-    validate_life_table(age, lx, mx, source=table.source, rows=table.lines)
+    validate_life_table(age, lx, mx, source=table.source, rows=table.lines,
+                        max_mx=MAX_COLONY_MX)
     return {"age": age, "lx": lx, "mx": mx}
 
 

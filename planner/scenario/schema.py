@@ -189,10 +189,11 @@ class InlineLifeTable(_Model):
 
     @model_validator(mode="after")
     def _check(self):
-        from planner.demography.lifetable import validate_life_table
+        from planner.demography.lifetable import MAX_COLONY_MX, validate_life_table
         from planner.errors import InputError
         try:
-            validate_life_table(self.age, self.lx, self.mx, source="life_table")
+            validate_life_table(self.age, self.lx, self.mx, source="life_table",
+                                max_mx=MAX_COLONY_MX)
         except InputError as exc:
             raise ValueError(str(exc)) from None
         if not np.allclose(self.age, np.arange(len(self.age))):

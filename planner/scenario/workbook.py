@@ -896,6 +896,7 @@ class _Reader:
         head = next(self._iter(ws, 1, 1), ())
         found: dict[int, Slot] = {}
         where = f"sheet '{spec.title}', row 1"
+        before = len(self.problems)
         for j, text in enumerate(head):
             if text is None or not str(text).strip():
                 continue
@@ -904,6 +905,20 @@ class _Reader:
                 self.problem(f"column {slot.header!r} appears twice; keep one", where)
             elif slot is not None:
                 found[j] = slot
+        if not found and slots:
+            # no header at all in row 1 (a row inserted above them, or a sheet emptied):
+            # one mistake, one line
+            del self.problems[before:]
+            headers = {_norm(s.header) for s in slots}
+            moved = next((r for r, row in enumerate(self._iter(ws, 2, 20), 2)
+                          if any(v is not None and _norm(v) in headers for v in row)), None)
+            hint = (f"the headers are in row {moved}: delete the rows above them" if moved
+                    else "copy the header row from the template")
+            self.problem(f"row 1 must hold the column headers ({slots[0].header!r}, ...); "
+                         f"none is there: {hint}", where)
+            self.covered.update(spec.path + slot.path for slot in slots)
+            self.covered.add(spec.path)
+            return found
         for slot in slots:
             if slot.required and slot not in found.values() \
                     and spec.path + slot.path not in self.covered:
@@ -941,7 +956,10 @@ class _Reader:
         return None
 
     def _data_rows(self, ws, spec: SheetSpec, columns: dict[int, Slot]):
-        """(row number, {slot: cell value}) of every non-empty row."""
+        """(row number, {slot: cell value}) of every non-empty row (none when the header
+        row is missing: that is already reported, once)."""
+        if not columns:
+            return
         headless_reported: set[int] = set()
         for r, row in enumerate(self._iter(ws, 2), start=2):
             cells = {slot: row[j] for j, slot in columns.items() if j < len(row)}
@@ -999,13 +1017,14 @@ class _Reader:
     def _check_life_table(self, spec, slots, lists: dict, rows: list[int]) -> None:
         """Check a fully numeric life table here, so that messages give sheet rows (the
         schema's own check counts entries from 1)."""
-        from planner.demography.lifetable import validate_life_table
+        from planner.demography.lifetable import MAX_COLONY_MX, validate_life_table
         columns = [lists.get(name) for name in ("age", "lx", "mx")]
         if any(c is None or any(isinstance(v, bool) or not isinstance(v, (int, float))
                                 for v in c) for c in columns):
             return  # missing columns or non-numbers: the schema check reports them
         try:
-            validate_life_table(*columns, source=self.source, rows=rows)
+            validate_life_table(*columns, source=self.source, rows=rows,
+                                max_mx=MAX_COLONY_MX)
         except InputError as exc:
             headers = {s.path[0]: s.header for s in slots}
             place = f"sheet '{spec.title}'"

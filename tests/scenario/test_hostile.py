@@ -200,3 +200,24 @@ def test_a_name_too_long_for_the_system_is_one_short_line(demo_dir, key):
         load_scenario(demo_dir / "scenario.toml")
     line = str(info.value)
     assert "cannot be opened" in line and len(line) < 600, line[:300]
+
+
+def test_a_colony_model_with_impossible_fecundity_is_refused_by_check(demo_dir, capsys):
+    """Item 1 (and the fuzz run): every positive mx = 1e17 passed `check` with exit 0 and
+    only failed in `plan`. An mx above any insect's (the most fecund queens lay some tens
+    of thousands of eggs a day: a fact of the trade, typed from memory) is refused when the
+    colony model is read, naming the row."""
+    from planner.cli.main import main
+    lt = demo_dir / "fernhollow-fly-lifetable.csv"
+    lines = lt.read_text().splitlines()
+    out = []
+    for ln in lines:
+        parts = ln.split(",")
+        if len(parts) == 3 and parts[0].isdigit() and float(parts[2]) > 0:
+            parts[2] = "1e17"
+        out.append(",".join(parts))
+    lt.write_text("\n".join(out) + "\n")
+    code = main(["check", str(demo_dir / "scenario.toml")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1, err
+    assert "mx = 1e+17" in err[0] and "column 'mx'" in err[0] and "lifetable.csv" in err[0]
