@@ -123,6 +123,12 @@ def read_csv_table(path: str | Path, *, required: list[str] | None = None,
     if required is not None or optional is not None:
         required = [c.lower() for c in (required or [])]
         allowed = required + [c.lower() for c in (optional or [])]
+        if required and not any(name in allowed for name in header):
+            # no known column at all: the header line is missing (or is not the first
+            # line that is not a comment); one mistake, one line
+            raise InputError(f"this row should be the header ({', '.join(required)}) "
+                             f"but holds {','.join(header)[:60]!r}: put the header line "
+                             "first", source=source, place=f"row {header_line}")
         errors = []
         seen = set()
         for name in header:

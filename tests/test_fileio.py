@@ -60,3 +60,16 @@ def test_a_missing_file_and_a_long_name_in_a_message():
     long = "a" * 5000
     shown = short_name(long)
     assert len(shown) < 160 and shown.startswith("aaa") and "5000 characters" in shown
+
+
+def test_a_csv_without_its_header_line_is_one_line(tmp_path):
+    """bench/fuzz.py found that deleting a life table's header line gave one line per
+    column (the first data row taken as the header); it is one mistake, one line."""
+    from planner.csvtable import read_csv_table
+    from planner.errors import InputError, InputErrors
+    f = tmp_path / "lt.csv"
+    f.write_text("# a comment\n0,1.0,0\n1,0.9,0\n2,0.8,3\n")
+    with pytest.raises((InputError, InputErrors)) as info:
+        read_csv_table(f, required=["age", "lx", "mx"])
+    lines = info.value.lines()
+    assert len(lines) == 1 and "should be the header (age, lx, mx)" in lines[0], lines

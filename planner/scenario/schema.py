@@ -604,15 +604,21 @@ class Scenario(_Model):
             errs += _duplicate_names(where, [x.name for x in items])
         owner: dict[str, str] = {}
         seen: set[str] = set()
+        both: dict[tuple[str, str], list[str]] = {}
         for c in self.crews:
             if c.name in seen:
                 continue  # a repeated crew is one mistake, reported above
             seen.add(c.name)
             for t in (TASKS if c.tasks == "all" else c.tasks):
                 if t in owner:
-                    errs.append(f"crews: task {t!r} is done by both {owner[t]!r} and {c.name!r}; "
-                                "give each task to one crew")
+                    both.setdefault((owner[t], c.name), []).append(t)
                 owner[t] = c.name
+        for (first, second), tasks in both.items():
+            # one line per pair of crews: a moved line gives several tasks to both
+            what = (f"task {tasks[0]!r} is" if len(tasks) == 1 else
+                    "tasks " + ", ".join(repr(t) for t in tasks) + " are")
+            errs.append(f"crews: {what} done by both {first!r} and {second!r}; give each task "
+                        "to one crew")
         missing = [t for t in TASKS if t not in owner]
         if missing:
             errs.append("crews: no crew does " + ", ".join(missing) + " (add them to a crew's "

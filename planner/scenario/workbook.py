@@ -1327,5 +1327,31 @@ def read_workbook(path: str | Path) -> Scenario:
     problems = reader.problems + [reader.refine(e) for e in found
                                   if not reader.is_redundant(e)]
     if problems:
-        _raise(problems)
+        _raise(_group_required(problems, path.name))
     return scenario
+
+
+_CELL_PLACE = re.compile(r"^(sheet '[^']*', row \d+), column '(.*)'$")
+
+
+def _group_required(problems: list[InputError], source: str) -> list[InputError]:
+    """The empty required cells of one row as one line (a stray value in an empty row,
+    or a row half filled, is one mistake)."""
+    rows: dict[str, list[int]] = {}
+    for i, e in enumerate(problems):
+        m = _CELL_PLACE.match(str(e.place or ""))
+        if e.why == "this field is required" and m:
+            rows.setdefault(m.group(1), []).append(i)
+    drop: set[int] = set()
+    merged: dict[int, InputError] = {}
+    for place, idx in rows.items():
+        if len(idx) < 2:
+            continue
+        names = [_CELL_PLACE.match(str(problems[i].place)).group(2) for i in idx]
+        shown = ", ".join(repr(n) for n in names[:6]) + (
+            f" and {len(names) - 6} more" if len(names) > 6 else "")
+        merged[idx[0]] = InputError(f"{len(names)} required cells of this row are empty "
+                                    f"({shown}): fill the row or clear it", source=source,
+                                    place=place)
+        drop.update(idx[1:])
+    return [merged.get(i, e) for i, e in enumerate(problems) if i not in drop]

@@ -221,3 +221,15 @@ def test_a_colony_model_with_impossible_fecundity_is_refused_by_check(demo_dir, 
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1, err
     assert "mx = 1e+17" in err[0] and "column 'mx'" in err[0] and "lifetable.csv" in err[0]
+
+
+def test_a_crew_without_its_task_line_is_one_line(demo_dir):
+    """bench/fuzz.py: deleting the larval crew's `tasks` line (its default is all tasks)
+    gave one line per task done by both crews; one line per pair of crews."""
+    f = demo_dir / "scenario.toml"
+    f.write_text(f.read_text().replace('tasks = ["diet_mixing", "seeding", '
+                                       '"larval_collection"]\n', ""))
+    with pytest.raises((InputError, InputErrors)) as info:
+        load_scenario(f)
+    lines = info.value.lines()
+    assert len(lines) == 1 and "are done by both 'Colony crew' and 'Larval crew'" in lines[0]
