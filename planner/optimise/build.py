@@ -442,6 +442,10 @@ def build_model(data: PlanData, *, relax: bool = False,
     hday, hok = data.rows(np.array([d + th for d, th in release.labels], np.int64))
     task("harvest_packing", hday[hok], release.cols(release.labels)[hok],
          lab.harvest_packing * U / 1e6)
+    # the colony's own pupae are harvested too (on the day they are loaded)
+    for j in range(len(deltas)):
+        task("harvest_packing", load_rows[load_ok], load_cols[:, j],
+             lab.colony_harvest_rate * U / 1e6)
     oc = overtime.offset + np.arange(nc * n)
     fam.add(np.arange(nc * n), oc, -1.0)
     adds = data.option_adds("crew_hours")

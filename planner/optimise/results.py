@@ -242,7 +242,8 @@ def read_back(built: BuiltModel, sol: Solution) -> PlanResult:
         "egg_collection": lab.egg_collection * laying,
         "seeding": lab.seeding * trays,
         "larval_collection": lab.larval_collection * collected,
-        "harvest_packing": lab.harvest_packing * released / 1e6,
+        "harvest_packing": (lab.harvest_packing * released
+                            + lab.colony_harvest_rate * to_colony) / 1e6,
         "cage_loading": lab.cage_loading * loaded,
         "cage_care": lab.cage_care * occupied,
         "cage_discard": lab.cage_discard * discarded,

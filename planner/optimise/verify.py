@@ -145,6 +145,7 @@ def verify_plan(res, rel_tol: float = 1e-6) -> list[Violation]:
     rel = defaultdict(float)          # (cohort, age) -> pupae released
     to_col = defaultdict(float)       # cohort -> pupae to cages
     released_on = defaultdict(float)  # harvest day -> pupae released
+    colony_on = defaultdict(float)    # harvest day -> pupae harvested for the cages
     for h in res.harvests.itertuples():
         if h.kind == "release":
             rel[(h.laying_day, h.age)] += h.pupae
@@ -154,6 +155,7 @@ def verify_plan(res, rel_tol: float = 1e-6) -> list[Violation]:
                 flag("release", h.laying_day, h.pupae, "pupae released outside the plan")
         else:
             to_col[h.laying_day if not cycle else h.laying_day % n] += h.pupae
+            colony_on[day(h.laying_day + h.age)] += h.pupae
 
     ship_days = {WEEKDAYS.index(d) for d in scn.calendar.shipping_days}
     for hd, v in released_on.items():
@@ -260,7 +262,8 @@ def verify_plan(res, rel_tol: float = 1e-6) -> list[Violation]:
                     "egg_collection": lab.egg_collection * laying.get(t, 0.0),
                     "seeding": lab.seeding * trays.get(t, 0.0),
                     "larval_collection": lab.larval_collection * collected.get(t, 0.0),
-                    "harvest_packing": lab.harvest_packing * released_on.get(t, 0.0) / 1e6,
+                    "harvest_packing": (lab.harvest_packing * released_on.get(t, 0.0)
+                                        + lab.colony_harvest_rate * colony_on.get(t, 0.0)) / 1e6,
                     "cage_loading": lab.cage_loading * loads.get(t, 0.0),
                     "cage_care": lab.cage_care * occupied.get(t, 0.0),
                     "cage_discard": lab.cage_discard * discards.get(t, 0.0),

@@ -256,7 +256,9 @@ def _tasks(wb, res, schedule):
                     c = ws.cell(row=row, column=j, value=v)
                     c.border = _BOX
                     if j in (5, 7, 8):
-                        c.number_format = _FMT["num"] if j == 5 else _FMT["big"]
+                        # whole things whole (cages, trays, pupae and eggs to 1,000), kg to 0.1
+                        c.number_format = ("#,##0.0" if j == 5 and ln.unit == "kg"
+                                           else _FMT["int"])
                     if j == 11:
                         c.number_format = "0.00"
                 row += 1

@@ -421,10 +421,18 @@ class LabourStandards(_Model):
     larval_collection: Q("h/tray", "per tray whose larvae are collected", ge=0) = 0.0
     harvest_packing: Q("h/million", "per million pupae harvested and packed for release",
                        ge=0) = 0.0
+    colony_harvest: Q("h/million", "per million pupae harvested for the colony's own cages "
+                      "(done by the crew that harvests for release; leave out to use "
+                      "harvest_packing)", ge=0) | None = None
     cage_loading: Q("h/cage", "per cage loaded with pupae", ge=0) = 0.0
     cage_care: Q("h/cage/day", "per occupied cage per day (feeding, water, cleaning)",
                  ge=0) = 0.0
     cage_discard: Q("h/cage", "per cage emptied and cleaned", ge=0) = 0.0
+
+    @property
+    def colony_harvest_rate(self) -> float:
+        """Hours per million pupae harvested for the colony's cages [h/million]."""
+        return self.harvest_packing if self.colony_harvest is None else self.colony_harvest
 
 
 class Costs(_Model):

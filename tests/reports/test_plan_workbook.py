@@ -104,6 +104,24 @@ def test_task_sheets_print_one_day_per_page(written, fly_plan):
     assert len(ticks) > fly_plan.data.report_days
 
 
+def test_task_sheet_counts_are_whole_and_formatted_so(written):
+    """Issue 13: '1.00 cages', '295.00 trays' on the sheet. Count cells hold whole
+    numbers with a whole-number format; kg keep one decimal."""
+    _, _, wb = written
+    ws = wb["Tasks"]
+    seen = 0
+    for row in ws.iter_rows(min_row=2):
+        if row[0].value != "\u2610":
+            continue
+        qty, unit = row[4], row[5].value
+        if unit in ("cages", "trays") or "to 1,000" in str(unit):
+            assert float(qty.value) % 1 == 0 and qty.number_format == "#,##0"
+            seen += 1
+        elif unit == "kg":
+            assert qty.number_format == "#,##0.0"
+    assert seen > 100
+
+
 def test_cage_register_sheet(written, fly_schedule):
     _, _, wb = written
     sheet = _sheet_frame(wb["Cage register"])
