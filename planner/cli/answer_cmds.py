@@ -8,11 +8,10 @@ import math
 import sys
 from pathlib import Path
 
-from planner.cli.format import checked, dumps, num, table
+from planner.cli.format import JSON_HELP, SCENARIO_HELP, checked, dumps, load_scenario, num, table
 from planner.cli.plan_cmds import solver_options
 from planner.errors import InputError, NoPlanError
 from planner.cautions import CAUTIONS
-from planner.scenario import load_scenario
 
 # The answers and the report writers are imported in the handlers: building the parser
 # (every command, `check` too) must not load the optimiser.
@@ -53,7 +52,7 @@ def register(sub) -> None:
                                    "it be taken in full, the extra cost, when the ramp-up "
                                    "must begin, and otherwise the largest volume and the "
                                    "earliest full start.")
-    p.add_argument("scenario")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
     p.add_argument("--weekly", type=_volume, required=True, metavar="V",
                    help="product per week [million/week]")
     p.add_argument("--weeks", type=_weeks, required=True, metavar="N",
@@ -62,7 +61,7 @@ def register(sub) -> None:
                    help="first day of the order (default: the first week the egg-to-harvest "
                         "lead time allows)")
     p.add_argument("--customer", default="Quote", help="customer name")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.add_argument("-o", "--output", metavar="QUOTE.xlsx",
                    help="write the plan with the order (or with what can be promised)")
     solver_options(p)
@@ -72,8 +71,8 @@ def register(sub) -> None:
                        description="The largest constant weekly volume of the standard week, "
                                    "and for each resource the volume at which it becomes "
                                    "binding and its shadow price.")
-    p.add_argument("scenario")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     solver_options(p)
     p.set_defaults(handler=_cmd_capacity)
 
@@ -81,7 +80,7 @@ def register(sub) -> None:
                        description="Choose among the scenario's expansion options the "
                                    "least-cost set that meets a target weekly volume, with "
                                    "its plan; or sweep a range of targets.")
-    p.add_argument("scenario")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
     p.add_argument("--target", type=_volume, metavar="V",
                    help="total product per week to deliver [million/week]")
     p.add_argument("--from", dest="from_date", type=_date, metavar="DATE",
@@ -93,7 +92,7 @@ def register(sub) -> None:
                    help="local worker processes for the sweep (default: the CPUs)")
     p.add_argument("--scheduler", metavar="ADDRESS",
                    help="run the sweep on a Dask cluster (needs the cluster extra)")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.add_argument("-o", "--output", metavar="EXPANSION.xlsx", help="write the workbook")
     solver_options(p)
     p.set_defaults(handler=_cmd_expand)

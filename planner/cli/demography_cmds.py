@@ -3,14 +3,21 @@
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
-from planner.cli.format import checked, dumps, kv_table, num, table
-from planner.demography import (LifeTable, all_stage_harvest_fraction, analyse_cohort,
-                                harvest_grid, read_cohort_records, read_life_table,
-                                read_stage_matrix, single_stage_harvest)
+from planner.cli.format import JSON_HELP, checked, dumps, kv_table, num, table
 from planner.errors import DemographyError
 
+if TYPE_CHECKING:
+    from planner.demography import LifeTable
+
 __all__ = ["register", "lifetable_report", "harvest_report"]
+
+
+def _demography():
+    """The demographic layer, loaded when a command runs (not for ``--help``)."""
+    import planner.demography
+    return planner.demography
 
 
 _fraction = checked(float, lambda v: 0 < v <= 1, "a fraction in (0, 1]")
@@ -29,13 +36,13 @@ def register(sub) -> None:
     p.add_argument("--age-unit", default="day", help="unit of the age column (default: day)")
     p.add_argument("--harvest-interval", type=_positive, default=1.0, metavar="TAU",
                    help="interval of the all-stage harvest [age units] (default 1)")
-    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_lifetable)
 
     p = sub.add_parser("matrix", help="eigen-analysis of a stage-classified matrix CSV",
                        description="Analyse a stage matrix CSV: header 'stage,<name>,...', "
                                    "rows '<name>,<a_i1>,...' (column = from, row = to).")
-    p.add_argument("file")
+    p.add_argument("file", help="CSV of a stage-classified (Lefkovitch) projection matrix")
     p.add_argument("--interval-unit", default="day",
                    help="length of one projection interval (default: day)")
     p.add_argument("--harvest-interval", type=_positive, default=1.0, metavar="TAU",
@@ -44,14 +51,14 @@ def register(sub) -> None:
                    help="which entries are new offspring: stage names (whole rows) or "
                         "'to<-from' pairs, comma-separated (default: the file's "
                         "'# fecundity:' line, else the first row)")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_matrix)
 
     p = sub.add_parser("harvest", help="harvest fraction and daily output per female",
                        description="Single-stage harvest of a life table: with the three "
                                    "ages, the stationary colony; without them, the grid of "
                                    "H and P over harvest age < discard age.")
-    p.add_argument("file")
+    p.add_argument("file", help="life table CSV with columns age,lx,mx")
     p.add_argument("--harvest-age", type=_age, metavar="A", help="age at harvest [age unit]")
     p.add_argument("--discard-age", type=_age, metavar="A",
                    help="age at which cages are emptied [age unit]")
@@ -59,8 +66,8 @@ def register(sub) -> None:
                    help="first adult age [age unit] (default: the first laying age)")
     p.add_argument("--female-fraction", type=_fraction, metavar="F",
                    help="mx counts all eggs and F of them are female")
-    p.add_argument("--age-unit", default="day")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--age-unit", default="day", help="unit of the age column (default: day)")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_harvest)
 
     p = sub.add_parser("cohort", help="life table from daily cohort records, with intervals",
@@ -68,7 +75,7 @@ def register(sub) -> None:
                                    "females) and mx (eggs per female-day) from cage records "
                                    "with the columns cage,day,females,eggs[,males,removed,"
                                    "removed_males].")
-    p.add_argument("file")
+    p.add_argument("file", help="CSV of daily cage records (cohort life table)")
     p.add_argument("--bootstrap", type=_count, default=0, metavar="N",
                    help="bootstrap resamples of cages (default 0: jackknife only)")
     p.add_argument("--seed", type=int, default=None, metavar="S", help="bootstrap seed")
@@ -76,7 +83,7 @@ def register(sub) -> None:
                    help="share of the eggs that are female (default 1: eggs counted are female)")
     p.add_argument("--entry-survival", type=_fraction, default=1.0, metavar="S",
                    help="probability that an egg reaches the first observed age (default 1)")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_cohort)
 
 
@@ -84,7 +91,7 @@ def register(sub) -> None:
 
 def _all_stage(lam: float, tau: float) -> float | None:
     try:
-        return all_stage_harvest_fraction(lam, tau)
+        return _demography().all_stage_harvest_fraction(lam, tau)
     except DemographyError:
         return None
 
@@ -109,8 +116,13 @@ def lifetable_report(lt: LifeTable, tau: float = 1.0) -> tuple[dict, str]:
          "none (no growth)", "share of every age"),
     ], title=f"Life table {lt.source or ''} ({lt.age.size} ages, {num(lt.age[0])} to "
              f"{num(lt.age[-1])} {u})".replace("  ", " "))
-    frame = lt.to_frame()
-    rows = frame[frame["lx"] > 0].itertuples(index=False)
+    # the columns of LifeTable.to_frame, without loading pandas for a printed table
+    d = _demography()
+    r = lt.intrinsic_rate
+    keep = lt.lx > 0
+    rows = zip(lt.age[keep], lt.lx[keep], lt.mx[keep], (lt.lx * lt.mx)[keep],
+               d.stable_age_distribution(lt.age, lt.lx, r)[keep],
+               d.reproductive_values(lt.age, lt.lx, lt.mx, r)[keep])
     text += "\n\n" + table(rows, [f"age [{u}]", "lx [-]", f"mx [/female/{u}]", "lx*mx [-]",
                                   "stable age c_x [-]", "reprod. value v_x [-]"], digits=5)
     if lt.notes:
@@ -119,7 +131,8 @@ def lifetable_report(lt: LifeTable, tau: float = 1.0) -> tuple[dict, str]:
 
 
 def _cmd_lifetable(args) -> int:
-    lt = read_life_table(args.file, female_fraction=args.female_fraction, age_unit=args.age_unit)
+    lt = _demography().read_life_table(args.file, female_fraction=args.female_fraction,
+                                       age_unit=args.age_unit)
     s, text = lifetable_report(lt, args.harvest_interval)
     print(dumps(s) if args.json else text)
     return 0
@@ -128,7 +141,8 @@ def _cmd_lifetable(args) -> int:
 # -- matrix ------------------------------------------------------------------------
 
 def _cmd_matrix(args) -> int:
-    m = read_stage_matrix(args.file, interval=args.interval_unit, fecundity=args.fecundity)
+    m = _demography().read_stage_matrix(args.file, interval=args.interval_unit,
+                                        fecundity=args.fecundity)
     s = m.summary()
     s["all_stage_harvest"] = _all_stage(s["finite_rate"], args.harvest_interval)
     s["harvest_interval"] = args.harvest_interval
@@ -165,7 +179,7 @@ def _or_unmarked(value):
 
 def harvest_report(lt: LifeTable, theta: float, delta: float, eps: float | None):
     """One single-stage harvest as a JSON-ready dict and as text."""
-    res = single_stage_harvest(lt, theta, delta, eps)
+    res = _demography().single_stage_harvest(lt, theta, delta, eps)
     s = res.summary()
     u = lt.age_unit
     items = [
@@ -188,7 +202,8 @@ def harvest_report(lt: LifeTable, theta: float, delta: float, eps: float | None)
 
 
 def _cmd_harvest(args) -> int:
-    lt = read_life_table(args.file, female_fraction=args.female_fraction, age_unit=args.age_unit)
+    lt = _demography().read_life_table(args.file, female_fraction=args.female_fraction,
+                                       age_unit=args.age_unit)
     notes = list(lt.notes)
     if args.emergence_age is None:
         notes.append(f"no --emergence-age: output per female counts females from the first "
@@ -198,7 +213,7 @@ def _cmd_harvest(args) -> int:
         s["notes"] = notes
         print(dumps(s) if args.json else text + "".join(f"\nnote: {n}" for n in notes))
         return 0
-    grid = harvest_grid(lt, args.emergence_age,
+    grid = _demography().harvest_grid(lt, args.emergence_age,
                         harvest_ages=None if args.harvest_age is None else [args.harvest_age],
                         discard_ages=None if args.discard_age is None else [args.discard_age])
     eps = lt.first_laying_age if args.emergence_age is None else args.emergence_age
@@ -223,8 +238,8 @@ def _cmd_harvest(args) -> int:
 # -- cohort ------------------------------------------------------------------------
 
 def _cmd_cohort(args) -> int:
-    rec = read_cohort_records(args.file)
-    res = analyse_cohort(rec, female_fraction=args.female_fraction,
+    rec = _demography().read_cohort_records(args.file)
+    res = _demography().analyse_cohort(rec, female_fraction=args.female_fraction,
                          entry_survival=args.entry_survival, bootstrap=args.bootstrap,
                          seed=args.seed, jackknife=rec.n_cages >= 2)
     s = res.summary()

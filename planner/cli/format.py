@@ -7,13 +7,13 @@ import json
 import math
 from collections.abc import Iterable, Sequence
 
-import numpy as np
+import sys
 
 __all__ = ["num", "table", "kv_table", "to_jsonable", "dumps"]
 
 
 def _is_number(v) -> bool:
-    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+    return isinstance(v, _types("number")) and not isinstance(v, _types("bool"))
 
 
 def num(value, digits: int = 4) -> str:
@@ -21,7 +21,7 @@ def num(value, digits: int = 4) -> str:
     inf and NaN spelled out."""
     if value is None:
         return "-"
-    if isinstance(value, (bool, np.bool_)):
+    if isinstance(value, _types("bool")):
         return "yes" if value else "no"
     if not _is_number(value):
         return str(value)
@@ -121,13 +121,13 @@ def to_jsonable(obj):
         return {str(k): to_jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
         return [to_jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
+    if isinstance(obj, _types("array")):
         return [to_jsonable(v) for v in obj.tolist()]
-    if isinstance(obj, (bool, np.bool_)):
+    if isinstance(obj, _types("bool")):
         return bool(obj)
-    if isinstance(obj, (int, np.integer)):
+    if isinstance(obj, _types("int")):
         return int(obj)
-    if isinstance(obj, (float, np.floating)):
+    if isinstance(obj, _types("float")):
         v = float(obj)
         return v if math.isfinite(v) else None
     if isinstance(obj, (_dt.date, _dt.datetime)):
@@ -156,3 +156,34 @@ def checked(convert, ok, rule: str):
             raise argparse.ArgumentTypeError(f"{text!r} is not {rule}")
         return value
     return parse
+
+
+#: Help of the arguments every command shares.
+SCENARIO_HELP = "scenario file (.toml, or an input workbook .xlsx)"
+JSON_HELP = "print one JSON object on stdout instead of tables"
+
+
+def _types(kind: str) -> tuple:
+    """Python types of a kind, with numpy's when numpy is loaded (if it is not, no value
+    can be a numpy one: the command line does not load numpy to print its help)."""
+    np = sys.modules.get("numpy")
+    base = {"number": (int, float), "bool": (bool,), "int": (int,), "float": (float,),
+            "array": ()}[kind]
+    if np is None:
+        return base
+    extra = {"number": (np.integer, np.floating), "bool": (np.bool_,), "int": (np.integer,),
+             "float": (np.floating,), "array": (np.ndarray,)}[kind]
+    return base + extra
+
+
+def load_scenario(path):
+    """:func:`planner.scenario.load_scenario`, loaded when a command runs (not when the
+    parser is built)."""
+    from planner.scenario import load_scenario as load
+    return load(path)
+
+
+def demo_scenario_path(which: str = "fly"):
+    """:func:`planner.scenario.demo_scenario_path`, loaded on use."""
+    from planner.scenario import demo_scenario_path as where
+    return where(which)

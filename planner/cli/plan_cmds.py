@@ -9,12 +9,12 @@ import sys
 import tempfile
 from pathlib import Path
 
-from planner.cli.format import checked, dumps, kv_table, num, table
+from planner.cli.format import (SCENARIO_HELP, checked, demo_scenario_path, dumps,
+                                kv_table, load_scenario, num, table)
 from planner.cli.progress import Progress
 from planner.cautions import CAUTIONS
 from planner.errors import InputError
 from planner.risk import MAX_MARGIN
-from planner.scenario import demo_scenario_path, load_scenario
 
 # The optimiser, the risk replay and the report writers are imported where they are used:
 # building the parser (every command, `check` too) must not load them.
@@ -83,7 +83,7 @@ def register(sub) -> None:
                        description="Plan a scenario (TOML or input workbook): solve the "
                                    "programme and write the plan workbook, with optional CSV "
                                    "files and a JSON summary.")
-    p.add_argument("scenario")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
     p.add_argument("-o", "--output", metavar="PLAN.xlsx",
                    help="plan workbook (default: <scenario>-plan.xlsx beside the scenario)")
     p.add_argument("--csv", metavar="DIR", help="also write DIR/daily.csv and DIR/weekly.csv")

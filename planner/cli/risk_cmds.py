@@ -4,12 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from planner.cli.format import dumps, num, table
+from planner.cli.format import JSON_HELP, SCENARIO_HELP, dumps, load_scenario, num, table
 from planner.cli.plan_cmds import (RISK_CAUTION, margin_lines, replay_fits, risk_options, risk_rows,
                                    run_margin, solver_options)
 from planner.errors import NoPlanError
 from planner.cautions import CAUTIONS
-from planner.scenario import load_scenario
 
 __all__ = ["register"]
 
@@ -22,8 +21,8 @@ def register(sub) -> None:
                                    "week's orders; with --target-fill, the smallest planned "
                                    "margin over the orders that fills every week with that "
                                    "probability.")
-    p.add_argument("scenario")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.add_argument("-o", "--output", metavar="RISK.xlsx",
                    help="write the plan workbook with its Risk sheet")
     solver_options(p)

@@ -4,9 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from planner.cli.format import dumps, kv_table, num, table
-from planner.scenario import load_scenario
-from planner.scenario.check import add_sustainable, check_report
+from planner.cli.format import JSON_HELP, SCENARIO_HELP, dumps, kv_table, load_scenario, num, table
 
 __all__ = ["register", "check_text"]
 
@@ -19,8 +17,8 @@ def register(sub) -> None:
                                    "kitchen days, shipping days and holidays) and the volume "
                                    "the facility can sustain (the standard week's linear "
                                    "programme), flagging short resources and weeks.")
-    p.add_argument("scenario", help="scenario file (.toml or .xlsx)")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("scenario", metavar="SCENARIO", help=SCENARIO_HELP)
+    p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_check)
 
     p = sub.add_parser("template", help="write the input workbook (filled with the demo)",
@@ -163,6 +161,7 @@ def calendar_text(cal: dict) -> str:
 def _cmd_check(args) -> int:
     from planner.errors import BroodlineError
     from planner.answers.checkcap import sustainable_volume
+    from planner.scenario.check import add_sustainable, check_report
     scn = load_scenario(args.scenario)
     rep = check_report(scn)
     if rep["orders"]["largest_volume"] > 0:

@@ -641,6 +641,10 @@ def _calendar_json(data, cal: dict) -> dict:
             "kitchen_shut_holidays": label(cal["kitchen_shut_holidays"])}
 
 
+#: The unit of one more of a resource, in the singular ("one more cage slot").
+_ONE = {"cages": "cage slot", "trays": "tray slot", "h": "crew hour", "kg": "kg of diet"}
+
+
 def describe_bottlenecks(res: PlanResult, top: int = 5) -> list[str]:
     """The resources that limit the plan most, in plain words. A day whose capacity is 0
     (the kitchen shut, a crew off) is not counted as full, nor among the days."""
@@ -664,7 +668,7 @@ def describe_bottlenecks(res: PlanResult, top: int = 5) -> list[str]:
         relaxed = float(prices.loc[sel, "relaxed_value"].sum()) if not prices.empty else 0.0
         if busy.empty and max(value, relaxed) <= 1e-9:
             continue
-        unit = g["unit"].iloc[0]
+        unit = _ONE.get(g["unit"].iloc[0], g["unit"].iloc[0])
         weeks = sorted({int(d) // 7 + 1 for d in busy})
         text = f"{resource}: {what} on {len(busy)} of {len(g)} days"
         if weeks:

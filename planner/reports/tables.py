@@ -110,15 +110,22 @@ def weekly_costs(res) -> pd.DataFrame:
 
 
 def utilisation_summary(res) -> pd.DataFrame:
-    """Per resource over the reported days: mean and peak use and the days it was full."""
+    """Per resource over the reported days: mean and peak use and the days it was full
+    (a crew's day is full when it works overtime, as the bottleneck list says)."""
     from planner.optimise.results import SATURATED
     u = res.utilisation[res.utilisation["day"] < res.data.report_days]
+    daily = res.horizon_daily.set_index("day")
     rows = []
     for resource, g in u.groupby("resource", sort=False):
+        full = g["utilisation"].to_numpy() >= SATURATED
+        if resource.startswith("crew hours: "):
+            crew = resource[len("crew hours: "):]
+            ot = daily[f"overtime: {crew}"].reindex(g["day"]).fillna(0.0).to_numpy()
+            full = full | (ot > 1e-3)
         rows.append({"resource": resource, "unit": g["unit"].iloc[0],
                      "mean_use": float(g["used"].mean()), "peak_use": float(g["used"].max()),
                      "mean_utilisation": float(g["utilisation"].mean()),
                      "peak_utilisation": float(g["utilisation"].max()),
-                     "days_full": int((g["utilisation"] >= SATURATED).sum()),
+                     "days_full": int(full.sum()),
                      "days": int(len(g))})
     return pd.DataFrame(rows)

@@ -54,6 +54,7 @@ def test_daily_sheet_equals_the_plan(written, fly_plan):
 def test_daily_csv_equals_the_plan(written, fly_plan):
     _, csvs, _ = written
     df = pd.read_csv(csvs["daily"])
+    df.columns = [c.split(" [")[0] for c in df.columns]
     for name in ("date", "cages_loaded", "cages_occupied", "cage_slots", "trays_seeded",
                  "trays_occupied", "rack_slots", "diet_kg", "diet_limit_kg", "crew_hours",
                  "crew_hours_available", "overtime_hours", "eggs_collected", "eggs_seeded",
@@ -65,8 +66,26 @@ def test_daily_csv_equals_the_plan(written, fly_plan):
                  "crew_hours", "overtime_hours"):
         np.testing.assert_allclose(df[name], d[name], rtol=1e-9)
     weekly = pd.read_csv(csvs["weekly"])
-    assert list(weekly.columns) == ["week", "customer", "ordered", "released", "shortfall"]
-    assert weekly["ordered"].sum() == pytest.approx(fly_plan.weekly["ordered"].sum())
+    assert list(weekly.columns) == ["week", "customer", "ordered [million]",
+                                    "released [million]", "shortfall [million]"]
+    assert weekly["ordered [million]"].sum() == pytest.approx(fly_plan.weekly["ordered"].sum())
+
+
+def test_readme_column_table_equals_the_csv_headers(written, fly_plan):
+    """Issue 13: README called the egg and pupae columns millions; they are counts. Every
+    header carries its unit, and README's table lists the same headers and units."""
+    import re
+    from pathlib import Path
+    _, csvs, _ = written
+    header = list(pd.read_csv(csvs["daily"], nrows=0).columns)
+    text = (Path(__file__).resolve().parents[2] / "README.md").read_text()
+    block = text[text.index("`daily.csv` columns"):text.index("`weekly.csv`:")]
+    rows = re.findall(r"^\| `([^`]+)` \| ([^|]+) \|$", block, re.M)
+    listed = [name if unit.strip() == "-" else f"{name} [{unit.strip()}]" for name, unit in rows]
+    crews = [f"{p}: {c} [h]" for c in fly_plan.data.crews for p in ("hours", "available",
+                                                                       "overtime")]
+    assert header == listed + crews
+    assert "eggs_collected [eggs]" in header and "pupae_released [pupae]" in header
 
 
 def test_task_sheet_totals_match_the_daily_plan(written, fly_plan):
@@ -175,3 +194,19 @@ def test_a_failed_write_leaves_the_old_file(fly_plan, fly_schedule, tmp_path, mo
         write_plan_workbook(fly_plan, target, schedule=fly_schedule)
     assert target.read_bytes() == b"last week's plan"
     assert [p.name for p in tmp_path.iterdir()] == ["plan.xlsx"]
+
+
+def test_a_crew_day_with_overtime_counts_as_full(fly_plan):
+    """Issue 13: Bottlenecks showed a crew 'days_full 0' beside 'overtime on 36 days'."""
+    from planner.optimise.results import describe_bottlenecks
+    from planner.reports.tables import utilisation_summary
+    u = utilisation_summary(fly_plan).set_index("resource")
+    d = fly_plan.horizon_daily
+    worked = False
+    for crew in fly_plan.data.crews:
+        ot_days = int((d[f"overtime: {crew}"] > 1e-3).sum())
+        assert u.at[f"crew hours: {crew}", "days_full"] >= ot_days
+        worked |= ot_days > 0
+    assert worked, "the demo plan works overtime somewhere"
+    text = " ".join(describe_bottlenecks(fly_plan, top=10))
+    assert "overtime worked on" in text
