@@ -67,6 +67,8 @@ def register(sub) -> None:
     p.add_argument("--female-fraction", type=_fraction, metavar="F",
                    help="mx counts all eggs and F of them are female")
     p.add_argument("--age-unit", default="day", help="unit of the age column (default: day)")
+    p.add_argument("--all", action="store_true",
+                   help=f"print every pair of the grid (default: the {GRID_SHOWN} best)")
     p.add_argument("--json", action="store_true", help=JSON_HELP)
     p.set_defaults(handler=_cmd_harvest)
 
@@ -201,6 +203,10 @@ def harvest_report(lt: LifeTable, theta: float, delta: float, eps: float | None)
     return s, text
 
 
+#: Pairs of the harvest grid printed without --all (the best by output per female).
+GRID_SHOWN = 20
+
+
 def _cmd_harvest(args) -> int:
     lt = _demography().read_life_table(args.file, female_fraction=args.female_fraction,
                                        age_unit=args.age_unit)
@@ -225,11 +231,22 @@ def _cmd_harvest(args) -> int:
                      "grid": grid.to_dict(orient="records")}))
         return 0
     u = lt.age_unit
-    print(table(grid.itertuples(index=False),
+    shown = grid
+    if not args.all and len(grid) > GRID_SHOWN:
+        # the best pairs by output per female; the feasible range below; --all: every pair
+        shown = grid.sort_values("output_per_female", ascending=False).head(GRID_SHOWN)
+    print(table(shown.itertuples(index=False),
                 [f"harvest age [{u}]", f"discard age [{u}]", "R0(delta) [-]",
                  "harvest fraction H [-]", f"output per female P [/female/{u}]"],
-                title=f"Single-stage harvest grid of {lt.source} ({len(grid)} pairs; emergence "
-                      f"age {num(eps)} {u})"))
+                title=f"Single-stage harvest grid of {lt.source} ("
+                      + (f"the {len(shown)} best of {len(grid)} pairs by P"
+                         if len(shown) < len(grid) else f"{len(grid)} pairs")
+                      + f"; emergence age {num(eps)} {u}; ages from egg laying)"))
+    if len(shown) < len(grid):
+        print(f"feasible pairs: harvest ages {num(grid['harvest_age'].min())}-"
+              f"{num(grid['harvest_age'].max())} {u}, discard ages "
+              f"{num(grid['discard_age'].min())}-{num(grid['discard_age'].max())} {u}; every "
+              "pair with --all or --json")
     for n in notes:
         print(f"note: {n}")
     return 0

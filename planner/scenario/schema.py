@@ -225,17 +225,18 @@ class Rearing(_Model):
     pupae_per_cage: N("pupae", "pupae an oviposition cage holds when full", gt=0)
     min_cage_fill: Q("-", "smallest share of pupae_per_cage a cage may be loaded with", ge=0,
                      le=1) = 0.8
-    cage_loading_age: N("day", "pupal age at which cages are loaded", gt=0)
+    cage_loading_age: N("day", "age (from egg laying) of the pupae loaded into cages",
+                        gt=0)
     eggs_per_tray: Q("eggs", "eggs seeded on one larval tray, counted at collection "
                              "(losses until seeding are in lx)", gt=0)
     diet_per_tray: Q("kg", "larval diet per tray", gt=0)
     seed_lag: N("day", "days from egg collection to seeding", ge=0)
     eggs_per_ml: Q("eggs/ml", "eggs per millilitre, to measure eggs by volume on the task "
                               "sheets", gt=0) | None = None
-    harvest_ages: list[int] = Field(min_length=1, description="pupal ages at which pupae may "
-                                                              "be harvested for release [day]")
-    discard_ages: list[int] = Field(min_length=1, description="ages at whose end cages may be "
-                                                              "emptied [day]")
+    harvest_ages: list[int] = Field(min_length=1, description="ages (from egg laying) at which "
+                                    "pupae may be harvested for release [day]")
+    discard_ages: list[int] = Field(min_length=1, description="ages (from egg laying) at whose "
+                                    "end cages may be emptied [day]")
     product_yield: Q("-", "share of harvested pupae that counts toward an order (e.g. the male "
                           "share for a male-only product, times the emergence after handling)",
                      gt=0, le=1)
@@ -459,8 +460,33 @@ class Calendar(_Model):
     shipping_days: list[str] = Field(min_length=1, description="weekdays on which pupae "
                                                                "ship (Mon ... Sun)")
     holidays: list[Date] = Field(default_factory=list, description="dates with holiday "
-                                                                      "crew hours and kitchen")
+                                 "crew hours and kitchen; a range FIRST..LAST (text, e.g. "
+                                 "'2027-08-02..2027-08-08') stands for every day in it")
     ship_on_holidays: bool = Field(False, description="whether pupae may ship on holidays")
+
+    @field_validator("holidays", mode="before")
+    @classmethod
+    def _ranges(cls, v):
+        """Expand each 'FIRST..LAST' text into its days (both ends included)."""
+        if not isinstance(v, list):
+            return v
+        out = []
+        for item in v:
+            if not (isinstance(item, str) and ".." in item):
+                out.append(item)
+                continue
+            first, _, last = item.partition("..")
+            try:
+                d0, d1 = dt.date.fromisoformat(first.strip()), dt.date.fromisoformat(last.strip())
+            except ValueError:
+                raise ValueError(f"holiday range {item!r}: write two dates FIRST..LAST, e.g. "
+                                 "2027-08-02..2027-08-08") from None
+            if d1 < d0:
+                raise ValueError(f"holiday range {item!r}: the last day is before the first")
+            if (d1 - d0).days > 366:
+                raise ValueError(f"holiday range {item!r} is longer than a year; split it")
+            out += [d0 + dt.timedelta(days=k) for k in range((d1 - d0).days + 1)]
+        return out
 
     @field_validator("shipping_days")
     @classmethod

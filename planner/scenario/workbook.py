@@ -120,7 +120,8 @@ SHEETS: tuple[SheetSpec, ...] = (
               "Plan start date, the weekdays on which pupae ship (yes or no for each day) and "
               "whether they may ship on holidays."),
     SheetSpec("Holidays", ("calendar", "holidays"), "list",
-              "One date per row: days with holiday crew hours and holiday kitchen capacity."),
+              "One date per row, or a range FIRST..LAST as text (2027-08-02..2027-08-08): days "
+              "with holiday crew hours and holiday kitchen capacity."),
     SheetSpec("Orders", ("orders",), "rows",
               "One row per standing weekly order. First and last week: a plan week number "
               "(1 = the week that starts on the plan start) or a date in that week; leave "

@@ -198,3 +198,21 @@ def test_corrupted_tables_never_give_a_traceback(tmp_path_factory, capsys, table
         assert "Traceback" not in err and "internal error" not in err
         if code == 2:
             assert err.strip() and all(line.startswith("error: ") for line in err.strip().splitlines())
+
+
+def test_the_harvest_grid_prints_the_best_pairs_and_the_range(fly_csv, capsys):
+    """Issue 13: the harvest grid printed 1,980 rows. By default the 20 best pairs by
+    output per female and the feasible range; every pair with --all, and in --json."""
+    import json
+    from planner.cli.demography_cmds import GRID_SHOWN
+    from planner.cli.main import main
+    assert main(["harvest", str(fly_csv), "--json"]) == 0
+    grid = json.loads(capsys.readouterr().out)["grid"]
+    assert len(grid) > GRID_SHOWN
+    assert main(["harvest", str(fly_csv)]) == 0
+    out = capsys.readouterr().out
+    assert f"the {GRID_SHOWN} best of {len(grid)} pairs" in out and "feasible pairs:" in out
+    best = max(g["output_per_female"] for g in grid)
+    assert f"{best:.2f}" in out
+    assert main(["harvest", str(fly_csv), "--all"]) == 0
+    assert len(capsys.readouterr().out.splitlines()) >= len(grid)

@@ -180,3 +180,36 @@ def test_scenario_file_of_another_kind(tmp_path):
     f.write_text("{}")
     with pytest.raises(InputError, match=r"\.toml file or an input workbook"):
         load_scenario(f)
+
+
+def test_a_holiday_week_is_one_range(demo_dir):
+    """Issue 13: a holiday week needed seven dates; 'FIRST..LAST' (text) stands for every
+    day in it, in TOML and in the workbook (same validator); a reversed range is one
+    line naming it."""
+    import datetime as dt
+    from planner.errors import InputError, InputErrors
+    from planner.scenario.workbook import read_workbook, write_workbook
+    f = demo_dir / "scenario.toml"
+    text = f.read_text()
+    f.write_text(text.replace('holidays = [2027-04-06, 2027-05-13]',
+                              'holidays = [2027-04-06, "2027-08-02..2027-08-08"]'))
+    scn = load_scenario(f)
+    want = [dt.date(2027, 4, 6)] + [dt.date(2027, 8, 2) + dt.timedelta(days=k)
+                                    for k in range(7)]
+    assert scn.calendar.holidays == want
+    book = demo_dir / "s.xlsx"
+    write_workbook(scn, book)
+    import openpyxl
+    wb = openpyxl.load_workbook(book)
+    ws = wb["Holidays"]
+    for row in range(2, ws.max_row + 1):
+        ws.cell(row=row, column=1).value = None
+    ws["A2"] = "2027-08-02..2027-08-08"
+    wb.save(book)
+    assert read_workbook(book).calendar.holidays == want[1:]
+    f.write_text(text.replace('holidays = [2027-04-06, 2027-05-13]',
+                              'holidays = ["2027-08-08..2027-08-02"]'))
+    with pytest.raises((InputError, InputErrors)) as info:
+        load_scenario(f)
+    lines = info.value.lines()
+    assert len(lines) == 1 and "before the first" in lines[0]
