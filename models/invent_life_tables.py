@@ -52,6 +52,38 @@ def moth() -> None:
           "Invented demo data: Fernhollow line FH-C1 (a tortricid moth), 27 C, cage colony")
 
 
+def fly_cohort_records() -> None:
+    """Invented daily cage records of line FH-L3 (for `broodline cohort`): six cages of
+    40 newly emerged females (day 28 from egg laying), counted every second day to day
+    90 (the table's end); deaths drawn from the fly table's adult survival, eggs from its mx (Poisson), two
+    females sampled from each cage on day 50 (censored). Seeded: the file is fixed."""
+    rng = np.random.default_rng(20261203)
+    table = np.loadtxt(HERE / "fernhollow-fly-lifetable.csv", delimiter=",", comments="#",
+                       skiprows=3)
+    lx, mx = table[:, 1], table[:, 2]
+    lines = ["# Invented demo records: line FH-L3 (a tephritid fruit fly), six cages of 40 "
+             "females from emergence",
+             "# day: age from egg laying [day]; females: alive at the count; eggs: laid since "
+             "the last count; removed: sampled (censored)",
+             "cage,day,females,eggs,removed"]
+    for cage in range(1, 7):
+        alive = 40
+        prev = 28
+        lines.append(f"FH-{cage},28,{alive},0,0")
+        for day in range(30, 92, 2):
+            eggs = 0
+            for d in range(prev, day):
+                eggs += int(rng.poisson(alive * mx[d]))
+                alive = int(rng.binomial(alive, lx[d + 1] / lx[d]))
+            removed = min(2, alive) if day == 50 else 0
+            lines.append(f"FH-{cage},{day},{alive - removed},{eggs},{removed}")
+            alive -= removed
+            prev = day
+    (HERE / "fernhollow-fly-cohort-records.csv").write_text("\n".join(lines) + "\n",
+                                                           encoding="utf-8")
+
+
 if __name__ == "__main__":
     fly()
     moth()
+    fly_cohort_records()
