@@ -242,8 +242,10 @@ def _summary_text(res, outputs: dict, risk_text: list[str] | None = None) -> str
         ("solver", f"{s['solver']} ({s['message']})", ""),
         ("relative gap", "-" if s["gap"] is None else f"{s['gap']:.2%}", ""),
         ("solve time", s["solve_seconds"], "s"),
-        ("total cost (reported weeks)", s["total_cost"], cur),
-        ("variable cost", s["variable_cost"], cur),
+        ("objective (all modelled weeks, shortfall priced)", s["objective"], cur),
+        ("variable cost (reported weeks; what the plan controls)", s["variable_cost"], cur),
+        ("total cost (variable + fixed regular crew)", s["total_cost"], cur),
+        ("shortfall price of unmet orders (reported weeks)", s["shortfall_cost"], cur),
         ("cost per million delivered", s["cost_per_million"], f"{cur}/million"),
         ("delivered / ordered", f"{num(s['released_million'])} / {num(s['ordered_million'])}",
          "million"),
@@ -313,7 +315,8 @@ def _finish(res, args, workbook: Path, scenario_file: str | None, margin=None) -
     if args.json:
         s = res.summary()
         keys = ["status", "time_limited", "message", "solver", "objective", "best_bound", "gap",
-                "solve_seconds", "total_cost", "variable_cost", "cost_per_million", "currency",
+                "solve_seconds", "total_cost", "variable_cost", "shortfall_cost",
+                "cost_per_million", "currency",
                 "released_million", "ordered_million", "shortfall_million", "weeks",
                 "bottlenecks", "shortfalls", "discard_ages_used", "harvest_ages_used",
                 "booked_shortfall_million", "customers"]

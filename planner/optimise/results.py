@@ -63,9 +63,25 @@ class PlanResult:
         return self.daily[self.daily["in_horizon"]]
 
     def total_cost(self) -> float:
-        """Variable plus fixed crew cost over the reported weeks [currency]."""
+        """Variable cost plus the fixed regular crew over the reported weeks, without the
+        shortfall price (a price, not a cost) [currency]."""
         c = self.costs
-        return float(c.loc[c["period"] == "horizon", "cost"].sum())
+        return float(c.loc[(c["period"] == "horizon") & (c["term"] != "shortfall"),
+                           "cost"].sum())
+
+    def variable_cost(self) -> float:
+        """What the plan controls over the reported weeks: diet, trays, cages, cage days,
+        overtime, bought options; without the fixed crew and the shortfall price
+        [currency]."""
+        c = self.costs
+        keep = (c["period"] == "horizon") & ~c["term"].isin(["shortfall", "regular crew"])
+        return float(c.loc[keep, "cost"].sum())
+
+    def shortfall_cost(self) -> float:
+        """The shortfall price of the reported weeks' unmet orders [currency]."""
+        c = self.costs
+        return float(c.loc[(c["period"] == "horizon") & (c["term"] == "shortfall"),
+                           "cost"].sum())
 
     def released_million(self) -> float:
         """Product delivered over the reported weeks [million]."""
@@ -104,9 +120,8 @@ class PlanResult:
             "message": info.message, "solver": info.solver,
             "objective": info.objective, "best_bound": info.best_bound, "gap": info.gap,
             "solve_seconds": info.seconds,
-            "total_cost": total, "variable_cost": float(self.costs.loc[
-                (self.costs["period"] == "horizon") & (self.costs["term"] != "regular crew"),
-                "cost"].sum()),
+            "total_cost": total, "variable_cost": self.variable_cost(),
+            "shortfall_cost": self.shortfall_cost(),
             "cost_per_million": total / released if released > 0 else None,
             "currency": self.scenario.costs.currency,
             "released_million": released, "ordered_million": float(self.weekly["ordered"].sum()),

@@ -203,3 +203,17 @@ def test_an_empty_order_book_is_planned_not_a_crash(tmp_path, capsys):
     assert rc == 0
     assert out["ordered_million"] == 0 and out["weeks"] == []
     assert (tmp_path / "plan.xlsx").exists()
+
+
+def test_the_three_cost_totals_are_named_and_add_up(fly_plan):
+    """Issue 13: three cost totals without explanation (objective, total, variable). The
+    total is the variable cost plus the fixed regular crew; the shortfall price is its
+    own figure; the objective (all modelled weeks, shortfall priced, no fixed crew) is
+    the horizon's variable cost and shortfall price plus the look-ahead's."""
+    s = fly_plan.summary()
+    crew = fly_plan.scenario.costs.regular_crew_per_week * fly_plan.data.report_weeks
+    assert s["total_cost"] == pytest.approx(s["variable_cost"] + crew, rel=1e-9)
+    c = fly_plan.costs
+    look = float(c.loc[c["period"] == "lookahead", "cost"].sum())
+    assert s["objective"] == pytest.approx(s["variable_cost"] + s["shortfall_cost"] + look,
+                                           rel=1e-6)
