@@ -30,8 +30,8 @@ from planner.scenario.schema import WEEKDAYS
 
 __all__ = ["write_plan_workbook", "write_sweep_workbook", "SHEET_NAMES", "CAUTIONS"]
 
-SHEET_NAMES = ["Summary", "Orders", "Daily plan", "Tasks", "Cage register", "Tray register",
-               "Rooms", "Labour", "Costs", "Bottlenecks", "Demography"]
+SHEET_NAMES = ["Summary", "Orders", "Daily plan", "Tasks", "At a glance", "Cage register",
+               "Tray register", "Rooms", "Labour", "Costs", "Bottlenecks", "Demography"]
 
 
 _STAMP = dt.datetime(2000, 1, 1)
@@ -274,6 +274,90 @@ def _tasks(wb, res, schedule):
     _widths(ws, {1: 6, 2: 9, 3: 26, 4: 58, 5: 11, 6: 8, 7: 12, 8: 11, 9: 18, 10: 8, 11: 9,
                  12: 18})
     _print_setup(ws, "1:1")
+
+
+#: Colours of a batch's age on the glance sheet: (first day of the band as a share of
+#: the batch's time in its room, fill, words for the legend).
+_AGE_BANDS = [(0.0, "E3F2FD", "first quarter of its time in the room"),
+              (0.25, "90CAF9", "second quarter"),
+              (0.5, "FFE082", "third quarter"),
+              (0.75, "FFAB91", "last quarter (emptied or collected soon)")]
+
+
+def _glance(wb, res, schedule):
+    """The week on one page, per week: each room's batches down (cages in adult rooms,
+    trays on racks in larval rooms), the week's days across, each cell the batch's count
+    that day coloured by the batch's age; then each crew's planned hours against its
+    regular hours."""
+    ws = wb.create_sheet("At a glance")
+    data = res.data
+    daily = res.daily
+    n = data.report_days
+    fills = [(lo, PatternFill("solid", fgColor=c), words) for lo, c, words in _AGE_BANDS]
+    ws.cell(row=1, column=1, value="Plan at a glance: each week on its own page").font = _TITLE
+    ws.cell(row=2, column=1, value="cell: cages (adult rooms) or trays (larval rooms) of the "
+            "batch in the room that day; colour: the batch's age")
+    for j, (_, fill, words) in enumerate(fills):
+        c = ws.cell(row=3, column=2 + 2 * j, value=words)
+        ws.cell(row=3, column=1 + 2 * j, value="").fill = fill
+        c.alignment = Alignment(wrap_text=False)
+    parts = []  # (kind, room, batch, first day, length, count)
+    for p in schedule.cages.itertuples():
+        parts.append(("cages", p.room, p.batch, int(p.load_day), data.span(p.discard_age),
+                      int(p.cages)))
+    for p in schedule.trays.itertuples():
+        parts.append(("trays", p.room, p.batch, int(p.seed_day), data.rack_days, int(p.trays)))
+    row = 5
+    for w0 in range(0, n, 7):
+        days = range(w0, min(w0 + 7, n))
+        ws.cell(row=row, column=1, value=f"Week {w0 // 7 + 1} (from {data.date(w0)})").font = \
+            _TITLE
+        row += 1
+        head = ["room", "batch"] + [f"{WEEKDAYS[int(data.weekday[t])].capitalize()} "
+                                    f"{data.date(t)}" for t in days]
+        for j, text in enumerate(head, start=1):
+            c = ws.cell(row=row, column=j, value=text)
+            c.font, c.fill, c.border = _BOLD, _HEAD_FILL, _BOX
+        row += 1
+        for kind, rooms in (("cages", data.scenario.facility.adult_rooms),
+                            ("trays", data.scenario.facility.larval_rooms)):
+            for room in rooms:
+                here = [q for q in parts if q[0] == kind and q[1] == room.name
+                        and q[3] <= days[-1] and q[3] + q[4] > days[0]]
+                if not here:
+                    ws.cell(row=row, column=1, value=room.name).border = _BOX
+                    ws.cell(row=row, column=2, value="(empty)").border = _BOX
+                    row += 1
+                for _, _, batch, start, length, count in sorted(here, key=lambda q: q[3]):
+                    ws.cell(row=row, column=1, value=room.name).border = _BOX
+                    ws.cell(row=row, column=2, value=f"{batch} ({kind})").border = _BOX
+                    for j, t in enumerate(days, start=3):
+                        c = ws.cell(row=row, column=j)
+                        c.border = _BOX
+                        if start <= t < start + length:
+                            c.value = count
+                            share = (t - start) / length
+                            c.fill = next(f for lo, f, _ in reversed(fills) if share >= lo)
+                    row += 1
+        row += 1
+        for j, text in enumerate(["crew", "hours [h]"] + head[2:], start=1):
+            c = ws.cell(row=row, column=j, value=text)
+            c.font, c.fill, c.border = _BOLD, _HEAD_FILL, _BOX
+        row += 1
+        for crew in data.crews:
+            for label, col in (("planned", f"hours: {crew}"), ("regular", f"available: {crew}"),
+                               ("overtime", f"overtime: {crew}")):
+                ws.cell(row=row, column=1, value=crew).border = _BOX
+                ws.cell(row=row, column=2, value=label).border = _BOX
+                for j, t in enumerate(days, start=3):
+                    c = ws.cell(row=row, column=j, value=round(float(daily.at[t, col]), 2))
+                    c.border = _BOX
+                    c.number_format = "0.0"
+                row += 1
+        ws.row_breaks.append(Break(id=row))
+        row += 2
+    _widths(ws, {1: 18, 2: 16, **{j: 15 for j in range(3, 10)}})
+    _print_setup(ws, None)
 
 
 def _register(wb, name, frame, units):
@@ -633,6 +717,7 @@ def write_plan_workbook(res, path: str | Path, *, schedule=None,
     _orders(wb, res)
     _daily(wb, res)
     _tasks(wb, res, schedule)
+    _glance(wb, res, schedule)
     cur_units = {"pupae": "pupae", "pupae_per_cage": "pupae", "cages": "cages",
                  "discard_age": "day", "load_day": "day", "discard_day": "day"}
     _register(wb, "Cage register", schedule.cages, cur_units)

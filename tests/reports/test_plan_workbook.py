@@ -210,3 +210,48 @@ def test_a_crew_day_with_overtime_counts_as_full(fly_plan):
     assert worked, "the demo plan works overtime somewhere"
     text = " ".join(describe_bottlenecks(fly_plan, top=10))
     assert "overtime worked on" in text
+
+
+def test_the_glance_sheet_shows_each_room_as_occupied(written, fly_plan, fly_schedule):
+    """Issue 13: a 'plan at a glance' sheet, rooms down and days across. Its cage cells
+    per adult room and day add up to the cages occupied there (from the cage register),
+    its tray cells per larval room and day to the trays on racks; every count cell is
+    coloured by the batch's age; each crew's planned hours are the plan's."""
+    _, _, wb = written
+    ws = wb["At a glance"]
+    data = fly_plan.data
+    occ: dict[tuple[str, str], float] = {}
+    hours: dict[tuple[str, str], float] = {}
+    head = None
+    for row in ws.iter_rows(min_row=1):
+        values = [c.value for c in row]
+        if values[0] in ("room", "crew"):
+            head = values
+            continue
+        if head is None or values[0] is None:
+            continue
+        if head[0] == "room" and isinstance(values[1], str) and values[1].endswith(")"):
+            for j in range(2, len(head)):
+                if head[j] and values[j] is not None:
+                    occ[(values[0], head[j].split()[1])] = occ.get(
+                        (values[0], head[j].split()[1]), 0) + values[j]
+                    assert row[j].fill.fgColor.rgb not in (None, "00000000")
+        if head[0] == "crew" and values[1] == "planned":
+            for j in range(2, len(head)):
+                if head[j]:
+                    hours[(values[0], head[j].split()[1])] = values[j]
+    want: dict[tuple[str, str], float] = {}
+    for reg, length in ((fly_schedule.cages, None), (fly_schedule.trays, data.rack_days)):
+        for p in reg.itertuples():
+            start = p.load_day if length is None else p.seed_day
+            span = data.span(p.discard_age) if length is None else length
+            count = p.cages if length is None else p.trays
+            for t in range(max(start, 0), min(start + span, data.report_days)):
+                key = (p.room, str(data.date(t)))
+                want[key] = want.get(key, 0) + count
+    assert occ == pytest.approx(want)
+    d = fly_plan.horizon_daily
+    for c in data.crews:
+        for r in d.itertuples():
+            assert hours[(c, str(r.date))] == pytest.approx(d.at[r.Index, f"hours: {c}"],
+                                                             abs=0.006)
