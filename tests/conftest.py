@@ -67,3 +67,31 @@ def moth_plan(moth):
 def fly_schedule(fly_plan):
     from planner.schedule import build_schedule
     return build_schedule(fly_plan)
+
+
+# -- tiers: the fast tests (no plan solved) run first, the solving ones after ----------
+
+#: Test paths (under tests/) whose tests solve plans: the slow tier, run after the rest
+#: (``python -m pytest -m "not slow"`` runs the fast tier alone, in about a minute).
+SLOW_TIER = ("answers/", "risk/", "optimise/", "reports/", "schedule/",
+             "cli/test_risk_cli.py", "cli/test_answer_cli.py", "cli/test_plan_cli.py",
+             "cli/test_kill.py", "test_packaging.py")
+
+
+def pytest_configure(config):
+    config.addinivalue_line("markers", "slow: solves plans (the second tier of the suite)")
+
+
+def pytest_collection_modifyitems(config, items):
+    root = Path(__file__).parent
+
+    def slow(item) -> bool:
+        try:
+            rel = Path(str(item.fspath)).resolve().relative_to(root).as_posix()
+        except ValueError:
+            return False
+        return rel.startswith(SLOW_TIER)
+    for item in items:
+        if slow(item):
+            item.add_marker(pytest.mark.slow)
+    items.sort(key=slow)  # stable: the fast tier first, each in its collected order

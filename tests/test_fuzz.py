@@ -43,7 +43,7 @@ def _assert_clean(outcome, what: str):
     assert len(outcome.error_lines) <= most, f"{what}: {outcome.stderr}"
 
 
-@_fuzz(120)
+@_fuzz(100)
 @given(category=st.sampled_from(CATEGORIES), seed=st.integers(0, 2 ** 32 - 1))
 def test_a_mutated_input_is_checked_or_refused_cleanly(base, category, seed):
     scenario, what = mutate(base, category, seed, _case_folder(base, f"check-{seed}"))
