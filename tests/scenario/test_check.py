@@ -155,6 +155,12 @@ def test_the_moth_demo_is_flagged_short(moth):
     # the calendar-aware estimate finds short resources too (the calendar-blind one did
     # not: "no resource is short on average")
     assert set(rep["short"]) - {"sustainable volume"}
+    # issue 13: a shipped demo that cannot fill its orders says so in its notes, with the
+    # volume it sustains (the LP's, to the two digits the note gives)
+    import re
+    said = re.search(r"about ([0-9.]+) million/week", " ".join(moth.notes.split()))
+    assert "Short on purpose" in moth.notes and said
+    assert float(said.group(1)) == pytest.approx(ref, abs=0.01)
 
 
 def test_the_fly_demo_passes(fly):
