@@ -108,7 +108,7 @@ def test_fill_rises_with_the_margin(six_weeks):
 
 def test_the_found_margin_holds_on_a_fresh_seed(six_weeks):
     target = 0.8
-    res = safety_margin(six_weeks, target, replicates=1000, seed=21, tolerance=0.02,
+    res = safety_margin(six_weeks, target, replicates=1000, seed=21, tolerance=0.05,
                         settings=settings_for(six_weeks, time_limit=30))
     s = res.summary()
     assert s["met"] and 0 < s["margin"] < 0.64
