@@ -186,3 +186,20 @@ def test_building_the_model_counts_in_the_time_limit(fly, monkeypatch):
     # the limit, plus at most the 1 s floor of the one call that may start and read-back
     assert took < 4.0 + 2.0, took
     assert f"{res.info.seconds:.1f} s" in res.info.message  # the whole run, not the rest
+
+
+def test_the_moth_demo_solves_within_its_own_limit(moth):
+    """Issue 13: the shipped moth demo stopped at its own 120 s limit. With the gap its
+    scenario states (3 %, explained there) the plan is proven within it, well inside the
+    limit, and its shortfall is the one its notes announce (weeks from 9, the peak)."""
+    res = plan_horizon(moth, settings_for(moth))
+    info = res.info
+    assert info.status == "optimal" and not info.time_limited, info.message
+    assert info.gap <= moth.plan.relative_gap + 1e-9
+    assert info.seconds < moth.plan.time_limit / 2
+    w = res.weekly.groupby("week")[["ordered", "shortfall"]].sum()
+    share = w["shortfall"] / w["ordered"]
+    # the peak weeks are short as announced; an early week at most a little (its price
+    # lies within the 3 % gap, as the notes say)
+    assert (share[share.index >= 9] > 0.10).all()
+    assert (share[share.index < 9] <= 0.02).all()
