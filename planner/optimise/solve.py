@@ -519,7 +519,8 @@ def solve(model: LinearModel, settings: SolveSettings = SolveSettings(),
     t_enter = time.perf_counter()
     prob, variables, rows = to_pulp(model)
     # handing the model to PuLP counts in the time limit as building it does
-    settings = dataclasses.replace(settings, spent=settings.spent + time.perf_counter() - t_enter)
+    settings = dataclasses.replace(settings,
+                                   spent=settings.spent + time.perf_counter() - t_enter)
     integ = model.integrality.astype(bool)
     phase = np.ones(model.n, int)
     for b in model.blocks.values():

@@ -142,6 +142,9 @@ def task_lines(res, cages: pd.DataFrame | None = None,
             float(n_cages), "cages", lab.egg_collection * n_cages, room=room,
             batch=", ".join(b for b, _, _, _ in parts), eggs=sum(e for _, _, _, e in parts))
     # eggs collected that no tray takes: a line (no labour standard: 0 h)
+    rooms_laying = defaultdict(list)  # day: the rooms whose cages lay that day
+    for t, room in sorted(laying):
+        rooms_laying[t].append(room)
     for t in range(n_report):
         surplus = float(daily.at[t, "eggs_discarded"])
         if surplus < max(0.5e3, 1e-6 * float(daily.at[t, "eggs_collected"])):
@@ -149,11 +152,13 @@ def task_lines(res, cages: pd.DataFrame | None = None,
         seed_day = t + data.seed_lag
         used = float(daily.at[t, "eggs_collected"]) - surplus
         if seed_day in daily.index and float(daily.at[seed_day, "trays_seeded"]) <= 0:
-            why = f"no trays are seeded on {data.date(seed_day)} (kitchen closed)"
+            shut = seed_day < data.n_days and float(data.kitchen[seed_day]) <= 0
+            why = f"no trays are seeded on {data.date(seed_day)}" + (
+                " (kitchen closed)" if shut else "")
         else:
             why = (f"the trays seeded on {data.date(seed_day)} take {_shown(used, 'eggs'):,} "
                    "of them")
-        rooms = sorted({room for (d, room) in laying if d == t})
+        rooms = rooms_laying.get(t, [])
         add(t, "egg_collection", f"eggs collected today that no tray takes: {why}; discard "
             "them", surplus, "eggs", 0.0, room=", ".join(rooms),
             batch=", ".join(b for room in rooms for b, _, _, _ in laying[(t, room)]),

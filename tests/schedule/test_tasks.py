@@ -82,6 +82,11 @@ def test_surplus_eggs_have_their_line(fly_plan, fly_schedule):
             break
         want = row["eggs_discarded"]
         assert abs(disc.get(t, 0.0) - want) <= 500 + 1e-6 * row["eggs_collected"], t
+    # "kitchen closed" only when the kitchen is closed on the seeding day
+    data = fly_plan.data
+    for ln in lines[lines["title"] == "Discard surplus eggs"].itertuples():
+        if "kitchen closed" in ln.what:
+            assert data.kitchen[ln.day + data.seed_lag] <= 0
     # one egg-collection line per room and day, its batches listed
     eggs = lines[lines["title"] == "Collect eggs"]
     assert not eggs.duplicated(["day", "room"]).any()
