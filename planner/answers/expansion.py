@@ -34,29 +34,44 @@ from planner.optimise.solve import SolveSettings, solve
 from planner.optimise.standard_week import start_batches
 from planner.scenario.schema import Order, Scenario
 
-__all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "target_price"]
+__all__ = ["ExpansionResult", "expand", "sweep", "TARGET_CUSTOMER", "target_price", "ramp_weeks"]
 
 TARGET_CUSTOMER = "growth target"
-#: The target's price is set so that leaving this many times the fill tolerance of the
-#: target unmet costs more than every option bought for the whole horizon [-].
+#: The target's price is set so that leaving the fill tolerance of the target unmet in
+#: every week an option unit is ready costs this many times that unit's cost [-] (two
+#: options that only help together are both bought).
 TARGET_PRICE_MARGIN = 2.0
+#: The target is held in full from the first week of this many weeks in a row that the
+#: LP relaxation (every option and integer relaxed) can fill [weeks]; the weeks before
+#: it are the ramp (lead time, options not yet ready): no plan fills them, so their
+#: unmet target is priced at the scenario's own shortfall price, not the target's.
+RAMP_SETTLED_WEEKS = 2
 
 
-def target_price(scn: Scenario, data, extra: list[Order]) -> float:
+def target_price(scn: Scenario, data, extra: list[Order], target: float) -> float:
     """Price of an unmet million of the growth target [currency/million].
 
-    High enough that an option is bought whenever it delivers more than the fill
-    tolerance of the target (leaving ``FILL_TOLERANCE`` of the target's volume unmet
-    costs ``TARGET_PRICE_MARGIN`` times every option bought for every week of the
-    horizon), and never below the scenario's own shortfall price. Not higher: the
-    solver's relative gap is taken on the whole objective, so a price far above the
-    operating cost would make the gap say nothing about the cost. The booked orders,
+    High enough that a unit of an option is bought whenever, in the weeks of the target
+    after its ready date, it lets the plan deliver ``FILL_TOLERANCE`` of the target
+    [million/week] more: that much unmet in each of those weeks costs
+    ``TARGET_PRICE_MARGIN`` times the unit's cost over every week it is paid for. Never
+    below the scenario's own shortfall price. Not higher: the solver's relative gap is
+    taken on the whole objective, and a price far above the operating cost makes the
+    gap say nothing about the cost (and the programme badly scaled). The booked orders,
     a priority class above, are priced above it in turn.
     """
-    volume = sum(o.weekly_volume * (o.last_week - o.first_week + 1) for o in extra)
-    weeks = data.n_days / 7.0
-    options = sum(o.weekly_cost * o.max_units * weeks for o in data.options)
-    need = TARGET_PRICE_MARGIN * options / (FILL_TOLERANCE * volume) if volume > 0 else 0.0
+    target_days = sorted({7 * (o.first_week - 1) + d for o in extra
+                          for d in range(7 * (o.last_week - o.first_week + 1))})
+    need = 0.0
+    for opt, ready in zip(data.options, data.option_ready):
+        paid = max(0, data.n_days - max(ready, 0)) / 7.0  # [weeks]
+        served = sum(1 for d in target_days if d >= ready) / 7.0  # [weeks]
+        if paid <= 0.0:
+            continue
+        if served <= 0.0:
+            continue  # ready only after the target's last week: it cannot serve it
+        per_week = TARGET_PRICE_MARGIN * opt.weekly_cost * paid / served
+        need = max(need, per_week / (FILL_TOLERANCE * max(target, 1e-9)))
     return max(scn.costs.shortfall_per_million, need)
 
 
@@ -73,7 +88,35 @@ class ExpansionResult:
     delivered: float
     shortfall: float
     seconds: float
-    solves: int = 1  #: solver runs: the plan, and the start routine when solved here
+    solves: int = 1  #: solver runs: the plan, the LP probe, and the start routine
+    ramp_weeks: list[int] = dataclasses.field(default_factory=list)
+
+    def _target_rows(self):
+        w = self.plan.weekly
+        return w[w["customer"] == TARGET_CUSTOMER]
+
+    @property
+    def full_from_week(self) -> int | None:
+        """First week from which the plan fills the target in every reported week."""
+        rows = self._target_rows()
+        short = rows.loc[rows["shortfall"] > FILL_TOLERANCE * rows["ordered"], "week"]
+        last = int(short.max()) if len(short) else self.from_week - 1
+        weeks = self.plan.data.report_weeks
+        return last + 1 if last < weeks else None
+
+    @property
+    def ramp(self) -> list[dict]:
+        """The ramp weeks: target, planned and short [million/week] each."""
+        rows = self._target_rows()
+        rows = rows[rows["week"].isin(self.ramp_weeks)]
+        return [{"week": int(r.week), "target_million": float(r.ordered),
+                 "planned_million": float(r.released), "short_million": float(r.shortfall)}
+                for r in rows.itertuples()]
+
+    @property
+    def shortfall_after_ramp(self) -> float:
+        rows = self._target_rows()
+        return float(rows.loc[~rows["week"].isin(self.ramp_weeks), "shortfall"].sum())
 
     @property
     def cost_per_million(self) -> float | None:
@@ -85,7 +128,10 @@ class ExpansionResult:
                 "bought": self.bought, "expansion_cost": self.expansion_cost,
                 "total_cost": self.total_cost, "cost_per_million": self.cost_per_million,
                 "delivered_million": self.delivered, "shortfall_million": self.shortfall,
-                "meets_target": self.shortfall <= 1e-3, "status": self.plan.info.status,
+                "meets_target": self.shortfall_after_ramp <= 1e-3,
+                "full_from_week": self.full_from_week, "ramp": self.ramp,
+                "shortfall_after_ramp_million": self.shortfall_after_ramp,
+                "status": self.plan.info.status,
                 "time_limited": self.plan.info.time_limited,
                 "booked_shortfall_million": self.plan.booked_shortfall(),
                 "customers": self.plan.customer_table(),
@@ -126,14 +172,20 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     probe = compile_horizon(scn, start)
     extra = _top_up(scn, target, week, probe.n_weeks)
     data = compile_horizon(scn, start, extra_orders=extra, use_expansion=True)
+    ramp: list[int] = []
     if TARGET_CUSTOMER in data.customers:
-        data.shortfall_price[data.customers.index(TARGET_CUSTOMER)] = target_price(scn, data,
-                                                                                   extra)
+        ci = data.customers.index(TARGET_CUSTOMER)
+        data.shortfall_price[ci] = target_price(scn, data, extra, target)
+        ramp = ramp_weeks(data, week, settings)
+        solves += 1
+        for k in ramp:
+            data.shortfall_price[ci, k - 1] = scn.costs.shortfall_per_million
     built = build_model(data)
-    res = read_back(built, solve(built.model, settings))
+    spent = settings.spent + time.perf_counter() - t0
+    res = read_back(built, solve(built.model, dataclasses.replace(settings, spent=spent)))
     if not res.info.has_plan:
         return ExpansionResult(target, week, res, {}, math.nan, math.nan, 0.0, math.nan,
-                               time.perf_counter() - t0, solves)
+                               time.perf_counter() - t0, solves, ramp)
     units = res.built.blocks["buy"].values(res.solution.x)
     bought = {opt.name: int(round(u)) for opt, u in zip(data.options, units)}
     c = res.costs
@@ -145,7 +197,35 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
                            expansion_cost=exp_cost, total_cost=total,
                            delivered=float(w["released"].sum()),
                            shortfall=float(w["shortfall"].sum()),
-                           seconds=time.perf_counter() - t0, solves=solves)
+                           seconds=time.perf_counter() - t0, solves=solves,
+                           ramp_weeks=ramp)
+
+
+def ramp_weeks(data, from_week: int, settings: SolveSettings) -> list[int]:
+    """Weeks from ``from_week`` before the target can be held [week numbers, 1 = first].
+
+    The LP relaxation of the expansion plan (every option, cage and tray relaxed: an
+    upper bound on what any plan delivers) is solved once; the target is settled from the
+    first week that starts :data:`RAMP_SETTLED_WEEKS` weeks in a row it fills to within
+    the fill tolerance, and the weeks before it are the ramp. None (an empty list) when
+    the LP fills every week, or never settles (a target beyond what every option
+    allows: its shortfall keeps the target's price in every week, so every option that
+    narrows it is bought).
+    """
+    lp = build_model(data, relax=True)
+    sol = solve(lp.model, settings.for_lp())
+    if sol.info.status != "optimal":
+        return []
+    ci = data.customers.index(TARGET_CUSTOMER)
+    blk = lp.blocks["shortfall"]
+    short = dict(zip(blk.labels, blk.values(sol.x)))
+    weeks = range(from_week, data.report_weeks + 1)
+    filled = [short.get((TARGET_CUSTOMER, w), 0.0) <= FILL_TOLERANCE * data.ordered[ci, w - 1]
+              for w in weeks]
+    for i in range(len(filled) - RAMP_SETTLED_WEEKS + 1):
+        if all(filled[i:i + RAMP_SETTLED_WEEKS]):
+            return list(weeks[:i])
+    return []
 
 
 def _task(params: dict) -> dict:
@@ -159,6 +239,7 @@ def _task(params: dict) -> dict:
            "expansion_cost": s["expansion_cost"], "cost_per_million": s["cost_per_million"],
            "delivered_million": s["delivered_million"],
            "shortfall_million": s["shortfall_million"], "meets_target": s["meets_target"],
+           "full_from_week": s["full_from_week"],
            "seconds": s["seconds"]}
     row.update({f"bought: {k}": v for k, v in res.bought.items()})
     return row

@@ -299,7 +299,12 @@ def _cmd_expand(args) -> int:
                 ("bought", s["bought"], "units"), ("expansion cost", s["expansion_cost"], cur),
                 ("total cost", s["total_cost"], cur),
                 ("cost per million", s["cost_per_million"], f"{cur}/million"),
-                ("short", s["shortfall_million"], "million"), ("status", s["status"], "")]
+                ("held in full from week", s["full_from_week"], "week"),
+                ("ramp-up weeks", ", ".join(str(r["week"]) for r in s["ramp"]), "week"),
+                ("short in the ramp-up", s["shortfall_million"] - s["shortfall_after_ramp_million"],
+                 "million"),
+                ("short after the ramp-up", s["shortfall_after_ramp_million"], "million"),
+                ("status", s["status"], "")]
         outputs["workbook"] = write_plan_workbook(res.plan, args.output,
                                                   scenario_file=Path(args.scenario).name,
                                                   front=("Expansion", "Expansion", rows))
@@ -307,9 +312,19 @@ def _cmd_expand(args) -> int:
         print(dumps(s | {"outputs": outputs}))
         return 0
     bought = [f"{v} x {k}" for k, v in s["bought"].items() if v]
+    full = s["full_from_week"]
+    held = (f"held in full from week {full} ({res.plan.data.date(7 * (full - 1))})"
+            if full is not None else "not held in full in any week to the horizon's end")
     print(f"Target {num(args.target)} million/week from week {s['from_week']} "
-          f"({s['from_date']}): " + ("met" if s["meets_target"] else
-                                    f"short by {num(s['shortfall_million'])} million in all"))
+          f"({s['from_date']}): {held}" +
+          ("" if s["meets_target"] else
+           f"; short by {num(s['shortfall_after_ramp_million'])} million after the ramp"))
+    if s["ramp"]:
+        print("Ramp-up weeks (no plan can fill them: lead time, options not yet ready; "
+              "their unmet part is priced at the scenario's shortfall price):")
+        for r in s["ramp"]:
+            print(f"  week {r['week']}: {num(args.target - r['short_million'])} of "
+                  f"{num(args.target)} million ({num(r['short_million'])} short)")
     print("Buy: " + (", ".join(bought) if bought else "nothing (the facility suffices)"))
     print(f"Expansion cost {s['expansion_cost']:,.0f} {cur}; total cost {s['total_cost']:,.0f} "
           f"{cur}; {s['cost_per_million']:,.0f} {cur} per million delivered ({s['status']}).")

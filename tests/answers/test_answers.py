@@ -123,6 +123,29 @@ def test_expand_never_takes_from_a_booked_order(short_fly):
         assert row.shortfall <= 1e-6 * row.ordered + 1e-9
 
 
+def test_expand_holds_the_target_after_a_ramp_that_lead_time_sets(fly):
+    """16 million/week asked from week 5 of a 12-week demo: no plan fills weeks 5-9 (the
+    options are ready from weeks 3, 5 and 7 and pupae take three weeks from egg laying),
+    so those weeks are the ramp-up, and the target is held in full from the week after."""
+    scn = fly.model_copy(deep=True)
+    scn.plan.horizon_weeks = 12
+    res = expand(scn, 16.0, from_week=5, settings=settings_for(scn))
+    s = res.summary()
+    assert res.ramp_weeks and res.ramp_weeks[0] == 5
+    assert s["meets_target"] and s["shortfall_after_ramp_million"] <= 1e-3
+    assert s["full_from_week"] == max(res.ramp_weeks) + 1
+    assert all(r["short_million"] > 0 for r in s["ramp"][:3])
+    # lead time (common practice, no source): pupae harvested in a week come from eggs
+    # laid at least the youngest harvest age earlier, seeded seed_lag days after laying;
+    # rack slots ready on day r first serve eggs laid on day r - seed_lag
+    rear = scn.colony.rearing
+    start = scn.calendar.start
+    ready = [(o.ready - start).days for o in scn.expansion if res.bought[o.name]]
+    first_served = max(ready) - rear.seed_lag + min(rear.harvest_ages)
+    assert max(res.ramp_weeks) <= first_served // 7 + 1
+    assert verify_plan(res.plan) == []
+
+
 def test_equal_priorities_share_a_short_week_pro_rata(short_fly):
     """Two customers of one class, a facility too small for both: each week's shortfall
     is the same share of each order (the largest relative shortfall minimised)."""
