@@ -46,6 +46,11 @@ TARGET_PRICE_MARGIN = 2.0
 #: it are the ramp (lead time, options not yet ready): no plan fills them, so their
 #: unmet target is priced at the scenario's own shortfall price, not the target's.
 RAMP_SETTLED_WEEKS = 2
+#: Time of the plan, at most [s], for a target that even the LP relaxation with every
+#: option fills in no two weeks in a row: the answer (not reachable) is known from the
+#: LP, and proving the largest delivery of a plant at its limit is a slow MILP whose
+#: plan is found early; the answer then carries its gap.
+UNREACHABLE_SECONDS = 20.0
 
 
 def target_price(scn: Scenario, data, extra: list[Order], target: float) -> float:
@@ -90,6 +95,9 @@ class ExpansionResult:
     seconds: float
     solves: int = 1  #: solver runs: the plan, the LP probe, and the start routine
     ramp_weeks: list[int] = dataclasses.field(default_factory=list)
+    #: False when even the LP relaxation with every option fills no
+    #: ``RAMP_SETTLED_WEEKS`` weeks in a row: the target is beyond the options
+    reachable: bool = True
 
     def _target_rows(self):
         w = self.plan.weekly
@@ -129,6 +137,7 @@ class ExpansionResult:
                 "total_cost": self.total_cost, "cost_per_million": self.cost_per_million,
                 "delivered_million": self.delivered, "shortfall_million": self.shortfall,
                 "meets_target": self.shortfall_after_ramp <= 1e-3,
+                "reachable": self.reachable,
                 "full_from_week": self.full_from_week, "ramp": self.ramp,
                 "shortfall_after_ramp_million": self.shortfall_after_ramp,
                 "status": self.plan.info.status,
@@ -172,20 +181,26 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     probe = compile_horizon(scn, start)
     extra = _top_up(scn, target, week, probe.n_weeks)
     data = compile_horizon(scn, start, extra_orders=extra, use_expansion=True)
-    ramp: list[int] = []
+    ramp: list[int] | None = []
     if TARGET_CUSTOMER in data.customers:
         ci = data.customers.index(TARGET_CUSTOMER)
         data.shortfall_price[ci] = target_price(scn, data, extra, target)
         ramp = ramp_weeks(data, week, settings)
         solves += 1
-        for k in ramp:
+        for k in ramp or []:
             data.shortfall_price[ci, k - 1] = scn.costs.shortfall_per_million
+    reachable = ramp is not None
+    ramp = ramp or []
     built = build_model(data)
     spent = settings.spent + time.perf_counter() - t0
-    res = read_back(built, solve(built.model, dataclasses.replace(settings, spent=spent)))
+    plan_settings = dataclasses.replace(settings, spent=spent)
+    if not reachable:
+        plan_settings = dataclasses.replace(
+            plan_settings, time_limit=min(settings.time_limit, spent + UNREACHABLE_SECONDS))
+    res = read_back(built, solve(built.model, plan_settings))
     if not res.info.has_plan:
         return ExpansionResult(target, week, res, {}, math.nan, math.nan, 0.0, math.nan,
-                               time.perf_counter() - t0, solves, ramp)
+                               time.perf_counter() - t0, solves, ramp, reachable)
     units = res.built.blocks["buy"].values(res.solution.x)
     bought = {opt.name: int(round(u)) for opt, u in zip(data.options, units)}
     c = res.costs
@@ -198,19 +213,19 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
                            delivered=float(w["released"].sum()),
                            shortfall=float(w["shortfall"].sum()),
                            seconds=time.perf_counter() - t0, solves=solves,
-                           ramp_weeks=ramp)
+                           ramp_weeks=ramp, reachable=reachable)
 
 
-def ramp_weeks(data, from_week: int, settings: SolveSettings) -> list[int]:
+def ramp_weeks(data, from_week: int, settings: SolveSettings) -> list[int] | None:
     """Weeks from ``from_week`` before the target can be held [week numbers, 1 = first].
 
     The LP relaxation of the expansion plan (every option, cage and tray relaxed: an
     upper bound on what any plan delivers) is solved once; the target is settled from the
     first week that starts :data:`RAMP_SETTLED_WEEKS` weeks in a row it fills to within
-    the fill tolerance, and the weeks before it are the ramp. None (an empty list) when
-    the LP fills every week, or never settles (a target beyond what every option
-    allows: its shortfall keeps the target's price in every week, so every option that
-    narrows it is bought).
+    the fill tolerance, and the weeks before it are the ramp (an empty list when the LP
+    fills every week). None when it never settles: a target beyond what every option
+    allows, whose shortfall keeps the target's price in every week, so every option that
+    narrows it is bought. (An LP that ends without an optimum gives an empty list.)
     """
     lp = build_model(data, relax=True)
     sol = solve(lp.model, settings.for_lp())
@@ -222,10 +237,13 @@ def ramp_weeks(data, from_week: int, settings: SolveSettings) -> list[int]:
     weeks = range(from_week, data.report_weeks + 1)
     filled = [short.get((TARGET_CUSTOMER, w), 0.0) <= FILL_TOLERANCE * data.ordered[ci, w - 1]
               for w in weeks]
-    for i in range(len(filled) - RAMP_SETTLED_WEEKS + 1):
-        if all(filled[i:i + RAMP_SETTLED_WEEKS]):
+    run = min(RAMP_SETTLED_WEEKS, len(filled))  # a short window: its end settles it
+    if run == 0:
+        return []
+    for i in range(len(filled) - run + 1):
+        if all(filled[i:i + run]):
             return list(weeks[:i])
-    return []
+    return None
 
 
 def _task(params: dict) -> dict:

@@ -11,6 +11,7 @@ is written atomically.
 from __future__ import annotations
 
 import datetime as dt
+from copy import copy
 from pathlib import Path
 
 import pandas as pd
@@ -78,6 +79,21 @@ def _table(ws, frame: pd.DataFrame, start_row: int = 1, units: dict | None = Non
             if fmt:
                 c.number_format = fmt
     return start_row + len(frame) + 1
+
+
+def _style(cell, **attrs) -> None:
+    """Set ``attrs`` (font, fill, border, number_format, ...) on ``cell``; cells given the
+    same attributes share the first one's style record, which skips openpyxl's hashing
+    of each style object on every cell (most of a large workbook's write time)."""
+    cache = cell.parent.parent.__dict__.setdefault("_broodline_styles", {})
+    key = tuple(sorted((k, v if isinstance(v, str) else id(v)) for k, v in attrs.items()))
+    arr = cache.get(key)
+    if arr is None:
+        for k, v in attrs.items():
+            setattr(cell, k, v)
+        cache[key] = (copy(cell._style), tuple(attrs.values()))  # values kept alive
+    else:
+        cell._style = copy(arr[0])
 
 
 def _cell(value):
@@ -255,13 +271,14 @@ def _tasks(wb, res, schedule):
                          _cell(ln.eggs), _cell(ln.volume_ml), ln.room, ln.batch, ln.hours]
                 for j, v in enumerate(cells, start=1):
                     c = ws.cell(row=row, column=j, value=v)
-                    c.border = _BOX
                     if j in (5, 7, 8):
                         # whole things whole (cages, trays, pupae and eggs to 1,000), kg to 0.1
-                        c.number_format = ("#,##0.0" if j == 5 and ln.unit == "kg"
-                                           else _FMT["int"])
-                    if j == 11:
-                        c.number_format = "0.00"
+                        _style(c, border=_BOX, number_format=(
+                            "#,##0.0" if j == 5 and ln.unit == "kg" else _FMT["int"]))
+                    elif j == 11:
+                        _style(c, border=_BOX, number_format="0.00")
+                    else:
+                        _style(c, border=_BOX)
                 row += 1
             total = float(g["hours"].sum())
             ws.cell(row=row, column=10, value="total").font = _BOLD
@@ -329,15 +346,17 @@ def _glance(wb, res, schedule):
                     ws.cell(row=row, column=2, value="(empty)").border = _BOX
                     row += 1
                 for _, _, batch, start, length, count in sorted(here, key=lambda q: q[3]):
-                    ws.cell(row=row, column=1, value=room.name).border = _BOX
-                    ws.cell(row=row, column=2, value=f"{batch} ({kind})").border = _BOX
+                    _style(ws.cell(row=row, column=1, value=room.name), border=_BOX)
+                    _style(ws.cell(row=row, column=2, value=f"{batch} ({kind})"), border=_BOX)
                     for j, t in enumerate(days, start=3):
                         c = ws.cell(row=row, column=j)
-                        c.border = _BOX
                         if start <= t < start + length:
                             c.value = count
                             share = (t - start) / length
-                            c.fill = next(f for lo, f, _ in reversed(fills) if share >= lo)
+                            _style(c, border=_BOX, fill=next(
+                                f for lo, f, _ in reversed(fills) if share >= lo))
+                        else:
+                            _style(c, border=_BOX)
                     row += 1
         row += 1
         for j, text in enumerate(["crew", "hours [h]"] + head[2:], start=1):
@@ -347,12 +366,11 @@ def _glance(wb, res, schedule):
         for crew in data.crews:
             for label, col in (("planned", f"hours: {crew}"), ("regular", f"available: {crew}"),
                                ("overtime", f"overtime: {crew}")):
-                ws.cell(row=row, column=1, value=crew).border = _BOX
-                ws.cell(row=row, column=2, value=label).border = _BOX
+                _style(ws.cell(row=row, column=1, value=crew), border=_BOX)
+                _style(ws.cell(row=row, column=2, value=label), border=_BOX)
                 for j, t in enumerate(days, start=3):
                     c = ws.cell(row=row, column=j, value=round(float(daily.at[t, col]), 2))
-                    c.border = _BOX
-                    c.number_format = "0.0"
+                    _style(c, border=_BOX, number_format="0.0")
                 row += 1
         ws.row_breaks.append(Break(id=row))
         row += 2
