@@ -318,12 +318,14 @@ def _cmd_expand(args) -> int:
     print(f"Target {num(args.target)} million/week from week {s['from_week']} "
           f"({s['from_date']}): {held}" +
           ("" if s["meets_target"] else
-           f"; short by {num(s['shortfall_after_ramp_million'])} million after the ramp"))
+           f"; short by {num(s['shortfall_after_ramp_million'])} million" +
+           (" after the ramp-up" if s["ramp"] else " in all")))
     if not s["reachable"]:
         from planner.answers.expansion import RAMP_SETTLED_WEEKS
         print(f"Not reachable: even the LP relaxation with every option bought fills no "
-              f"{RAMP_SETTLED_WEEKS} weeks in a row; the plan below is the best found within "
-              f"{num(res.plan.info.seconds)} s (status {s['status']}).")
+              f"{RAMP_SETTLED_WEEKS} weeks in a row; below, the plan that comes closest to it "
+              f"({s['status']}" + (f", gap {100 * res.plan.info.gap:.2f} %"
+                                   if res.plan.info.gap is not None else "") + ").")
     if s["ramp"]:
         print("Ramp-up weeks (no plan can fill them: lead time, options not yet ready; "
               "their unmet part is priced at the scenario's shortfall price):")
