@@ -251,22 +251,23 @@ def _tasks(wb, res, schedule):
         c.font = _BOLD
         c.fill = _HEAD_FILL
     row = 2
-    by_day = {t: g for t, g in lines.groupby("day")}
+    by_crew_day: dict[tuple, list] = {}  # one pass over the lines (small frames are slow)
+    for ln in lines.itertuples():
+        by_crew_day.setdefault((int(ln.day), ln.crew), []).append(ln)
     for t in range(data.report_days):
-        day_lines = by_day.get(t, lines.iloc[0:0])
         wd = WEEKDAYS[int(data.weekday[t])].capitalize()
         title = f"{wd} {data.date(t)}" + (" (holiday)" if data.holiday[t] else "") + \
             (" — shipping day" if data.can_ship[t] else "")
         ws.cell(row=row, column=1, value=title).font = _TITLE
         row += 1
         for crew in data.crews:
-            g = day_lines[day_lines["crew"] == crew]
+            g = by_crew_day.get((t, crew), [])
             avail = float(daily.at[t, f"available: {crew}"])
             ot = float(daily.at[t, f"overtime: {crew}"])
             ws.cell(row=row, column=1, value=f"{crew}: {avail:g} h regular" +
                     (f" + {ot:.1f} h overtime" if ot > 1e-6 else "")).font = _BOLD
             row += 1
-            for ln in g.itertuples():
+            for ln in g:
                 cells = ["\u2610", "", ln.title, ln.what, _cell(ln.quantity), ln.unit,
                          _cell(ln.eggs), _cell(ln.volume_ml), ln.room, ln.batch, ln.hours]
                 for j, v in enumerate(cells, start=1):
@@ -280,7 +281,7 @@ def _tasks(wb, res, schedule):
                     else:
                         _style(c, border=_BOX)
                 row += 1
-            total = float(g["hours"].sum())
+            total = float(sum(ln.hours for ln in g))
             ws.cell(row=row, column=10, value="total").font = _BOLD
             c = ws.cell(row=row, column=11, value=total)
             c.number_format = "0.00"
