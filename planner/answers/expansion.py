@@ -43,7 +43,7 @@ TARGET_CUSTOMER = "growth target"
 TARGET_PRICE_MARGIN = 2.0
 #: The target is held in full from the first week of this many weeks in a row that the
 #: LP relaxation (every option and integer relaxed) can fill [weeks]; the weeks before
-#: it are the ramp (lead time, options not yet ready): no plan fills them, so their
+#: it are the ramp (lead time, options not yet ready): no plan fills them all, so their
 #: unmet target is priced at the scenario's own shortfall price, not the target's.
 RAMP_SETTLED_WEEKS = 2
 
@@ -66,10 +66,8 @@ def target_price(scn: Scenario, data, extra: list[Order], target: float) -> floa
     for opt, ready in zip(data.options, data.option_ready):
         paid = max(0, data.n_days - max(ready, 0)) / 7.0  # [weeks]
         served = sum(1 for d in target_days if d >= ready) / 7.0  # [weeks]
-        if paid <= 0.0:
-            continue
-        if served <= 0.0:
-            continue  # ready only after the target's last week: it cannot serve it
+        if paid <= 0.0 or served <= 0.0:
+            continue  # ready only after the horizon or the target's last week
         per_week = TARGET_PRICE_MARGIN * opt.weekly_cost * paid / served
         need = max(need, per_week / (FILL_TOLERANCE * max(target, 1e-9)))
     return max(scn.costs.shortfall_per_million, need)
@@ -109,17 +107,31 @@ class ExpansionResult:
 
     @property
     def ramp(self) -> list[dict]:
-        """The ramp weeks: target, planned and short [million/week] each."""
+        """The ramp weeks: the growth order above the book (target, planned, short) and
+        what the week delivers to every customer together [million/week] each."""
         rows = self._target_rows()
         rows = rows[rows["week"].isin(self.ramp_weeks)]
+        w = self.plan.weekly
+        week_total = w.groupby("week")["released"].sum()
         return [{"week": int(r.week), "target_million": float(r.ordered),
-                 "planned_million": float(r.released), "short_million": float(r.shortfall)}
+                 "planned_million": float(r.released), "short_million": float(r.shortfall),
+                 "delivered_million": float(week_total[r.week])}
                 for r in rows.itertuples()]
+
+    def _target_short(self, in_ramp: bool) -> float:
+        rows = self._target_rows()
+        return float(rows.loc[rows["week"].isin(self.ramp_weeks) == in_ramp,
+                              "shortfall"].sum())
 
     @property
     def shortfall_after_ramp(self) -> float:
-        rows = self._target_rows()
-        return float(rows.loc[~rows["week"].isin(self.ramp_weeks), "shortfall"].sum())
+        """The growth target's unmet volume outside the ramp-up weeks [million]."""
+        return self._target_short(False)
+
+    @property
+    def shortfall_in_ramp(self) -> float:
+        """The growth target's unmet volume in the ramp-up weeks [million]."""
+        return self._target_short(True)
 
     @property
     def cost_per_million(self) -> float | None:
@@ -135,6 +147,7 @@ class ExpansionResult:
                 "reachable": self.reachable,
                 "full_from_week": self.full_from_week, "ramp": self.ramp,
                 "shortfall_after_ramp_million": self.shortfall_after_ramp,
+                "shortfall_in_ramp_million": self.shortfall_in_ramp,
                 "status": self.plan.info.status,
                 "time_limited": self.plan.info.time_limited,
                 "booked_shortfall_million": self.plan.booked_shortfall(),
@@ -176,16 +189,15 @@ def expand(scn: Scenario, target: float, from_week: int | None = None,
     probe = compile_horizon(scn, start)
     extra = _top_up(scn, target, week, probe.n_weeks)
     data = compile_horizon(scn, start, extra_orders=extra, use_expansion=True)
-    ramp: list[int] | None = []
+    ramp, reachable = [], True
     if TARGET_CUSTOMER in data.customers:
         ci = data.customers.index(TARGET_CUSTOMER)
         data.shortfall_price[ci] = target_price(scn, data, extra, target)
-        ramp = ramp_weeks(data, week, settings)
+        found = ramp_weeks(data, week, settings)
         solves += 1
-        for k in ramp or []:
+        reachable, ramp = found is not None, found or []
+        for k in ramp:
             data.shortfall_price[ci, k - 1] = scn.costs.shortfall_per_million
-    reachable = ramp is not None
-    ramp = ramp or []
     built = build_model(data)
     spent = settings.spent + time.perf_counter() - t0
     # (a target not reachable is a hard MILP, the plant at its limit everywhere: capping

@@ -301,8 +301,7 @@ def _cmd_expand(args) -> int:
                 ("cost per million", s["cost_per_million"], f"{cur}/million"),
                 ("held in full from week", s["full_from_week"], "week"),
                 ("ramp-up weeks", ", ".join(str(r["week"]) for r in s["ramp"]), "week"),
-                ("short in the ramp-up", s["shortfall_million"] - s["shortfall_after_ramp_million"],
-                 "million"),
+                ("short in the ramp-up", s["shortfall_in_ramp_million"], "million"),
                 ("short after the ramp-up", s["shortfall_after_ramp_million"], "million"),
                 ("status", s["status"], "")]
         outputs["workbook"] = write_plan_workbook(res.plan, args.output,
@@ -320,18 +319,23 @@ def _cmd_expand(args) -> int:
           ("" if s["meets_target"] else
            f"; short by {num(s['shortfall_after_ramp_million'])} million" +
            (" after the ramp-up" if s["ramp"] else " in all")))
+    from planner.answers.expansion import RAMP_SETTLED_WEEKS
     if not s["reachable"]:
-        from planner.answers.expansion import RAMP_SETTLED_WEEKS
         print(f"Not reachable: even the LP relaxation with every option bought fills no "
               f"{RAMP_SETTLED_WEEKS} weeks in a row; below, the plan that comes closest to it "
               f"({s['status']}" + (f", gap {100 * res.plan.info.gap:.2f} %"
                                    if res.plan.info.gap is not None else "") + ").")
     if s["ramp"]:
-        print("Ramp-up weeks (no plan can fill them: lead time, options not yet ready; "
+        from planner.optimise.results import FILL_TOLERANCE
+        print(f"Ramp-up weeks (before the first {RAMP_SETTLED_WEEKS} weeks in a row that even "
+              "the LP relaxation with every option fills: lead time, options not yet ready; "
               "their unmet part is priced at the scenario's shortfall price):")
         for r in s["ramp"]:
-            print(f"  week {r['week']}: {num(args.target - r['short_million'])} of "
-                  f"{num(args.target)} million ({num(r['short_million'])} short)")
+            short = (f"{num(r['short_million'])} million of the growth order short"
+                     if r["short_million"] > FILL_TOLERANCE * r["target_million"]
+                     else "filled")
+            print(f"  week {r['week']}: {num(r['delivered_million'])} of "
+                  f"{num(args.target)} million delivered ({short})")
     print("Buy: " + (", ".join(bought) if bought else "nothing (the facility suffices)"))
     print(f"Expansion cost {s['expansion_cost']:,.0f} {cur}; total cost {s['total_cost']:,.0f} "
           f"{cur}; {s['cost_per_million']:,.0f} {cur} per million delivered ({s['status']}).")

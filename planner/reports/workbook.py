@@ -77,7 +77,7 @@ def _table(ws, frame: pd.DataFrame, start_row: int = 1, units: dict | None = Non
             c = ws.cell(row=i, column=col + j, value=value)
             fmt = _fmt_for(units.get(frame.columns[j], ""), value)
             if fmt:
-                c.number_format = fmt
+                _style(c, number_format=fmt)
     return start_row + len(frame) + 1
 
 

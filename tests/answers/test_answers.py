@@ -140,6 +140,13 @@ def test_expand_holds_the_target_after_a_ramp_that_lead_time_sets(fly):
     assert s["meets_target"] and s["shortfall_after_ramp_million"] <= 1e-3
     assert s["full_from_week"] == max(res.ramp_weeks) + 1
     assert all(r["short_million"] > 0 for r in s["ramp"][:3])
+    assert s["shortfall_in_ramp_million"] == pytest.approx(
+        sum(r["short_million"] for r in s["ramp"]))
+    # the booked orders are served in full, so a ramp week delivers the target less its
+    # growth order's shortfall
+    assert s["booked_shortfall_million"] <= 1e-6
+    for r in s["ramp"]:
+        assert r["delivered_million"] == pytest.approx(16.0 - r["short_million"], abs=1e-6)
     # lead time (common practice, no source): pupae harvested in a week come from eggs
     # laid at least the youngest harvest age earlier, seeded seed_lag days after laying;
     # rack slots ready on day r first serve eggs laid on day r - seed_lag

@@ -84,9 +84,14 @@ def test_surplus_eggs_have_their_line(fly_plan, fly_schedule):
         assert abs(disc.get(t, 0.0) - want) <= 500 + 1e-6 * row["eggs_collected"], t
     # "kitchen closed" only when the kitchen is closed on the seeding day
     data = fly_plan.data
+    closed = 0
     for ln in lines[lines["title"] == "Discard surplus eggs"].itertuples():
         if "kitchen closed" in ln.what:
             assert data.kitchen[ln.day + data.seed_lag] <= 0
+            closed += 1
+        elif ln.day + data.seed_lag < data.n_days:
+            assert data.kitchen[ln.day + data.seed_lag] > 0
+    assert closed, "the demo's kitchen is shut on Sundays: Friday's eggs have no trays"
     # one egg-collection line per room and day, its batches listed
     eggs = lines[lines["title"] == "Collect eggs"]
     assert not eggs.duplicated(["day", "room"]).any()
